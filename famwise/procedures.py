@@ -1,0 +1,125 @@
+"""The catalogue of procedures: identifier, home module, route and purpose.
+
+Every procedure is a function ``fn(layout, family, *, alpha=0.05, **options)``
+returning the comparisons table (:func:`famwise.table.comparisons_table`).
+The catalogue names where each lives so that importing famwise stays cheap
+(numba kernels compile only when a resampling procedure is first used).
+``famwise procedures`` prints this catalogue.
+"""
+
+from __future__ import annotations
+
+import difflib
+import importlib
+from dataclasses import dataclass
+
+from .errors import FamwiseInputError
+
+__all__ = ["ProcedureInfo", "CATALOGUE", "check_procedure", "get_procedure",
+           "run_procedure"]
+
+
+@dataclass(frozen=True)
+class ProcedureInfo:
+    name: str
+    module: str
+    function: str
+    route: str            # "classical" | "unequal" | "resample" | "fdr"
+    families: tuple[str, ...]
+    purpose: str
+
+
+_ALL = ("all-pairs", "vs-reference", "contrasts")
+_PAIRS = ("all-pairs", "vs-reference")
+
+CATALOGUE: dict[str, ProcedureInfo] = {p.name: p for p in [
+    ProcedureInfo("lsd", "famwise.classical", "lsd", "classical", _ALL,
+                  "Fisher's least significant difference, unadjusted pooled t, "
+                  "used only after a significant F test; controls the familywise "
+                  "error rate only for three groups."),
+    ProcedureInfo("bonferroni", "famwise.classical", "bonferroni", "classical", _ALL,
+                  "Pooled t with Bonferroni's m-fold adjustment; any family, "
+                  "conservative when m is large."),
+    ProcedureInfo("sidak", "famwise.classical", "sidak", "classical", _ALL,
+                  "Pooled t with Sidak's adjustment; slightly less conservative "
+                  "than Bonferroni."),
+    ProcedureInfo("holm", "famwise.classical", "holm", "classical", _ALL,
+                  "Pooled t with Holm's step-down adjustment; uniformly more "
+                  "powerful than Bonferroni; no simultaneous intervals of its own."),
+    ProcedureInfo("tukey-kramer", "famwise.classical", "tukey_kramer", "classical",
+                  ("all-pairs", "contrasts"),
+                  "Studentized range for all pairwise differences, equal "
+                  "variances; exact for equal n, conservative for unequal n."),
+    ProcedureInfo("scheffe", "famwise.classical", "scheffe", "classical", _ALL,
+                  "Scheffe's F-based intervals, valid for every contrast at once; "
+                  "the choice for contrasts picked after seeing the data."),
+    ProcedureInfo("dunnett", "famwise.classical", "dunnett", "classical",
+                  ("vs-reference",),
+                  "Each group against a reference, equal variances; one- or "
+                  "two-sided."),
+    ProcedureInfo("welch", "famwise.unequal", "welch", "unequal", _ALL,
+                  "Welch t with Satterthwaite df for each comparison, unadjusted."),
+    ProcedureInfo("welch-holm", "famwise.unequal", "welch_holm", "unequal", _ALL,
+                  "Welch t with Holm's step-down adjustment."),
+    ProcedureInfo("games-howell", "famwise.unequal", "games_howell", "unequal",
+                  ("all-pairs",),
+                  "All pairs under unequal variances: studentized range at each "
+                  "pair's Welch df; mildly liberal with small groups."),
+    ProcedureInfo("dunnett-t3", "famwise.unequal", "dunnett_t3", "unequal",
+                  ("all-pairs", "contrasts"),
+                  "Unequal variances, studentized maximum modulus at each "
+                  "comparison's Welch df; holds its level with small groups."),
+    ProcedureInfo("welch-dunnett", "famwise.unequal", "welch_dunnett", "unequal",
+                  ("vs-reference",),
+                  "Each group against a reference under unequal variances "
+                  "(multivariate t with the Welch correlations)."),
+    ProcedureInfo("yuen-holm", "famwise.unequal", "yuen_holm", "unequal", _PAIRS,
+                  "Trimmed means with winsorised variances (Yuen), Holm "
+                  "adjusted; resists outliers and heavy tails."),
+    ProcedureInfo("permutation-maxt", "famwise.resample.procedures",
+                  "permutation_maxt", "resample", _ALL,
+                  "Single-step max-T over permutations of group labels "
+                  "(Welch statistics by default)."),
+    ProcedureInfo("permutation-stepdown", "famwise.resample.procedures",
+                  "permutation_stepdown", "resample", _ALL,
+                  "Step-down max-T over permutations; more powerful than single-step."),
+    ProcedureInfo("bootstrap-maxt", "famwise.resample.procedures",
+                  "bootstrap_maxt", "resample", _ALL,
+                  "Bootstrap-t max statistic with within-group resampling of "
+                  "centred data; unequal spreads and skew."),
+    ProcedureInfo("bootstrap-stepdown", "famwise.resample.procedures",
+                  "bootstrap_stepdown", "resample", _ALL,
+                  "Step-down version of the bootstrap max-t."),
+    ProcedureInfo("bh", "famwise.classical", "bh", "fdr", _ALL,
+                  "Benjamini-Hochberg false discovery rate (not familywise "
+                  "error) on pooled t; exploratory families."),
+]}
+
+
+def check_procedure(name: str) -> ProcedureInfo:
+    """Return the catalogue entry of ``name`` or raise a one-line error."""
+    try:
+        return CATALOGUE[name]
+    except (KeyError, TypeError):
+        close = difflib.get_close_matches(str(name), list(CATALOGUE), n=1)
+        hint = f"; did you mean {close[0]!r}?" if close else ""
+        raise FamwiseInputError(
+            f"unknown procedure {name!r}{hint} (known: {', '.join(CATALOGUE)}, "
+            f"or 'auto')") from None
+
+
+def get_procedure(name: str):
+    """Import and return the function implementing procedure ``name``."""
+    info = check_procedure(name)
+    return getattr(importlib.import_module(info.module), info.function)
+
+
+def run_procedure(name, layout, family, *, alpha=0.05, **options):
+    """Run procedure ``name`` on ``layout`` for ``family``."""
+    info = check_procedure(name)
+    if family.kind not in info.families and not (
+            family.kind == "contrasts" and family.is_pairwise and "all-pairs" in info.families):
+        raise FamwiseInputError(
+            f"procedure {name!r} does not handle the {family.kind!r} family "
+            f"(it handles: {', '.join(info.families)})")
+    return get_procedure(name)(layout, family, alpha=alpha, **options)

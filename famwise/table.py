@@ -1,0 +1,98 @@
+"""The comparisons table: one tidy layout shared by every procedure.
+
+Every procedure (classical, unequal-variance, resampling) returns a
+:class:`pandas.DataFrame` built by :func:`comparisons_table`, so the
+cross-check, the letters and the report read one set of columns:
+
+``comparison``    name of the comparison (``"A - B"`` or the contrast)
+``group_a``       first group (or the contrast's text), ``group_b`` second
+``difference``    mean_a - mean_b, or the contrast estimate sum(w_i * mean_i)
+``std_error``     its standard error under the procedure's model
+``df``            degrees of freedom of the reference distribution (inf: none)
+``statistic``     the procedure's test statistic (a t-like ratio unless noted)
+``p_unadjusted``  p-value of this comparison alone
+``p_adjusted``    p-value adjusted for the whole family
+``ci_lower``, ``ci_upper``
+                  (1 - alpha) interval; simultaneous where the procedure has
+                  one (see each procedure's docstring for what it holds)
+``reject``        p_adjusted <= alpha
+``procedure``     the procedure identifier
+``mc_error``      (resampling only) Monte Carlo standard error of p_adjusted
+``practical``     (with a margin only) the practical classification
+
+This module sits at the bottom of the package: it imports nothing else from
+famwise but :mod:`famwise.families` and :mod:`famwise.errors`.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from .families import Family
+
+__all__ = ["COLUMNS", "comparisons_table"]
+
+COLUMNS = (
+    "comparison", "group_a", "group_b", "difference", "std_error", "df",
+    "statistic", "p_unadjusted", "p_adjusted", "ci_lower", "ci_upper",
+    "reject", "procedure",
+)
+
+
+def _column(value, m: int, name: str) -> np.ndarray:
+    arr = np.broadcast_to(np.asarray(value, dtype=np.float64), (m,)).copy()
+    if name.startswith("p_"):
+        # Round-off can push a probability a hair outside [0, 1].
+        arr = np.clip(arr, 0.0, 1.0)
+    return arr
+
+
+def comparisons_table(
+    family: Family,
+    *,
+    difference,
+    std_error,
+    df,
+    statistic,
+    p_unadjusted,
+    p_adjusted,
+    ci_lower,
+    ci_upper,
+    alpha: float,
+    procedure: str,
+    mc_error=None,
+    **extra,
+) -> pd.DataFrame:
+    """Build the comparisons table for ``family`` (the one constructor).
+
+    Numeric arguments are arrays of length ``family.m`` (or scalars, which are
+    broadcast).  ``reject`` is derived as ``p_adjusted <= alpha``.  Extra
+    keyword columns are appended after the standard ones, ``mc_error`` first.
+    """
+    m = family.m
+    data = {
+        "comparison": list(family.names),
+        "group_a": list(family.group_a),
+        "group_b": list(family.group_b),
+        "difference": _column(difference, m, "difference"),
+        "std_error": _column(std_error, m, "std_error"),
+        "df": _column(df, m, "df"),
+        "statistic": _column(statistic, m, "statistic"),
+        "p_unadjusted": _column(p_unadjusted, m, "p_unadjusted"),
+        "p_adjusted": _column(p_adjusted, m, "p_adjusted"),
+        "ci_lower": _column(ci_lower, m, "ci_lower"),
+        "ci_upper": _column(ci_upper, m, "ci_upper"),
+    }
+    data["reject"] = data["p_adjusted"] <= alpha
+    data["procedure"] = [procedure] * m
+    if mc_error is not None:
+        data["mc_error"] = _column(mc_error, m, "mc_error")
+    for key, value in extra.items():
+        arr = np.asarray(value)
+        data[key] = (_column(arr, m, key) if arr.dtype.kind in "biuf"
+                     else list(np.broadcast_to(arr, (m,))))
+    table = pd.DataFrame(data)
+    table.attrs["alpha"] = float(alpha)
+    table.attrs["family"] = family.kind
+    return table
