@@ -1,0 +1,179 @@
+"""The ``famwise`` command line: a thin layer over the Python API.
+
+Exit codes: 0 success; 2 bad input or usage (one line on standard error, no
+traceback); 1 an internal error (set ``FAMWISE_DEBUG=1`` for the traceback).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+import warnings
+
+from . import __version__
+from .errors import FamwiseInputError, FamwiseWarning
+
+__all__ = ["main", "build_parser"]
+
+EXAMPLES = """\
+examples:
+  famwise inspect trial.csv --response nitrate_mg_kg --group mix
+  famwise inspect plots.xlsx --sheet 2025 --response yield --group variety
+  famwise inspect wide.csv --wide --columns "Rye,Fallow,Clover"
+  famwise demo --out out/demo
+"""
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that reports usage errors in one line with exit code 2."""
+
+    def error(self, message):
+        self.exit(2, f"famwise: error: {message} (see famwise {self.prog.split()[-1]} --help)\n"
+                  if " " in self.prog else f"famwise: error: {message} (see famwise --help)\n")
+
+
+def _add_data_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("file", help="CSV/TSV/TXT, Excel (.xlsx) or Parquet file")
+    p.add_argument("--response", "-r", metavar="COL", help="column of measured values")
+    p.add_argument("--group", "-g", metavar="COL", help="column of group labels")
+    p.add_argument("--wide", action="store_true",
+                   help="wide layout: one column per group")
+    p.add_argument("--columns", metavar="A,B,...",
+                   help="wide layout: the group columns to use (comma-separated)")
+    p.add_argument("--sheet", metavar="NAME", help="Excel sheet (default: the first)")
+    p.add_argument("--delimiter", metavar="CHAR", help="field delimiter (default: detected)")
+    p.add_argument("--decimal-comma", action="store_true",
+                   help="numbers use a decimal comma (3,7)")
+    p.add_argument("--encoding", metavar="NAME", help="text encoding (default UTF-8)")
+    p.add_argument("--order", metavar="A,B,...",
+                   help="group order (default: order of first appearance)")
+    p.add_argument("--merge-spellings", action="store_true",
+                   help="merge labels that differ only by case or spacing")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(
+        prog="famwise",
+        description="Compare groups robustly on messy data.",
+        epilog=EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--version", action="version", version=f"famwise {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    p = sub.add_parser("inspect", help="read a file and account for every row",
+                       description="Read a file, account for every row and summarise "
+                                   "each group.", epilog=EXAMPLES,
+                       formatter_class=argparse.RawDescriptionHelpFormatter)
+    _add_data_options(p)
+    p.add_argument("--format", choices=("text", "json", "csv"), default="text",
+                   help="what to print on standard output (default: text)")
+    p.add_argument("--quiet", "-q", action="store_true", help="print warnings only")
+    p.set_defaults(run=_run_inspect)
+
+    p = sub.add_parser("demo", help="run famwise on the invented cover-crop trial",
+                       description="Run famwise on the invented cover-crop trial and "
+                                   "write the results to a folder.")
+    p.add_argument("--out", metavar="DIR", default="out/demo", help="output folder")
+    p.add_argument("--force", action="store_true", help="replace existing output files")
+    p.add_argument("--quiet", "-q", action="store_true", help="print warnings only")
+    p.set_defaults(run=_run_demo)
+    return parser
+
+
+def _split(text):
+    return None if text is None else [s.strip() for s in text.split(",") if s.strip()]
+
+
+def _read(args):
+    from .intake import read
+    return read(args.file, args.response, args.group, wide=args.wide,
+                columns=_split(args.columns), sheet=args.sheet,
+                delimiter=args.delimiter, decimal="," if args.decimal_comma else ".",
+                encoding=args.encoding, order=_split(args.order),
+                merge_spellings=args.merge_spellings)
+
+
+def _inspection_text(intake, summary) -> str:
+    from .textformat import frame_text
+    lines = ["Rows", *intake.ledger.lines(), "", "Groups", frame_text(summary)]
+    return "\n".join(lines)
+
+
+def _run_inspect(args) -> int:
+    from .summary import group_summary
+    intake = _read(args)
+    summary = group_summary(intake.layout)
+    if args.quiet:
+        return 0
+    if args.format == "json":
+        print(json.dumps({"ledger": intake.ledger.to_dict(),
+                          "dropped": intake.ledger.to_frame().to_dict(orient="records"),
+                          "groups": summary.to_dict(orient="records")}, indent=2))
+    elif args.format == "csv":
+        from .output import safe_csv_text
+        sys.stdout.write(safe_csv_text(summary))
+    else:
+        print(_inspection_text(intake, summary))
+    return 0
+
+
+def _run_demo(args) -> int:
+    from .demo import DEMO_GROUP, DEMO_RESPONSE, covercrop_trial
+    from .intake import read
+    from .output import prepare_folder, safe_csv_text, write_atomic
+    from .summary import group_summary
+    names = ("groups.csv", "ledger.csv", "summary.txt", "covercrop_nitrate.csv")
+    folder = prepare_folder(args.out, names, force=args.force)
+    data = covercrop_trial()
+    data_path = os.path.join(folder, "covercrop_nitrate.csv")
+    write_atomic(data_path, data.to_csv(index=False, lineterminator="\n"))
+    intake = read(data_path, DEMO_RESPONSE, DEMO_GROUP, merge_spellings=True)
+    summary = group_summary(intake.layout)
+    text = _inspection_text(intake, summary)
+    write_atomic(os.path.join(folder, "groups.csv"), safe_csv_text(summary))
+    write_atomic(os.path.join(folder, "ledger.csv"), safe_csv_text(intake.ledger.to_frame()))
+    write_atomic(os.path.join(folder, "summary.txt"), text + "\n")
+    if not args.quiet:
+        print(text)
+        print(f"\nwrote {', '.join(names)} to {folder}")
+    return 0
+
+
+def _show_warning(message, category, filename, lineno, file=None, line=None):
+    print(f"famwise: warning: {message}", file=sys.stderr)
+
+
+def main(argv=None) -> int:
+    """Run the command line; return the exit code."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        parser.print_help()
+        return 2
+    previous = warnings.showwarning
+    warnings.showwarning = _show_warning
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("always", FamwiseWarning)
+            return int(args.run(args) or 0)
+    except FamwiseInputError as exc:
+        print(f"famwise: error: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("famwise: interrupted; nothing was written", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        return 0
+    except Exception as exc:  # an internal error: a bug to report
+        if os.environ.get("FAMWISE_DEBUG"):
+            raise
+        print(f"famwise: internal error: {type(exc).__name__}: {exc} "
+              f"(set FAMWISE_DEBUG=1 for the traceback)", file=sys.stderr)
+        return 1
+    finally:
+        warnings.showwarning = previous
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

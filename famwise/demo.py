@@ -1,0 +1,79 @@
+"""The invented demo scenario: a cover-crop field trial and residual soil nitrate.
+
+Six cover-crop mixes were sown on field plots in four blocks; after the
+winter, residual soil nitrate (mg/kg, 0-30 cm) was measured on each plot.
+The data are invented and seeded.  They carry the mess of a real trial:
+
+* unequal plot counts (4 to 12 usable per mix), because a low corner of the
+  field flooded and those plots were not sampled (their rows are kept, with
+  an empty nitrate cell and a note);
+* spread that grows with the mean (log-normal plot-to-plot variation), the
+  smallest mix carrying a large spread;
+* two outliers: a plot beside a manure heap and a decimal slip at entry;
+* three cells below the laboratory's detection limit written ``n.d.``;
+* one label typed in lower case (``cereal rye``).
+
+``python demos/generate.py`` rewrites ``demos/covercrop_nitrate.csv`` from
+:func:`covercrop_trial`; a test checks that the two agree.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+__all__ = ["MIXES", "covercrop_trial", "DEMO_SEED", "DEMO_RESPONSE", "DEMO_GROUP",
+           "DEMO_REFERENCE"]
+
+DEMO_SEED = 20261201
+DEMO_RESPONSE = "nitrate_mg_kg"
+DEMO_GROUP = "mix"
+DEMO_REFERENCE = "Bare fallow"
+
+#: mix -> (plots sown, typical nitrate mg/kg, plots lost to flooding)
+MIXES = {
+    "Bare fallow": (12, 24.0, 0),
+    "Cereal rye": (11, 9.0, 0),
+    "Rye + hairy vetch": (8, 13.0, 0),
+    "Oat / radish": (7, 11.0, 1),
+    "Crimson clover": (6, 18.0, 2),
+    "Six-species blend": (9, 10.0, 0),
+}
+
+
+def covercrop_trial(seed: int = DEMO_SEED) -> pd.DataFrame:
+    """Return the invented cover-crop trial as a DataFrame (one row per plot)."""
+    rng = np.random.default_rng(seed)
+    rows = []
+    plot = 0
+    for mix, (sown, typical, flooded) in MIXES.items():
+        # Log-normal plot variation: SD proportional to the mean (CV about 30%),
+        # larger on the clover plots, which lie on the uneven low ground.
+        sdlog = 0.55 if mix == "Crimson clover" else 0.3
+        values = typical * rng.lognormal(-sdlog ** 2 / 2, sdlog, size=sown)
+        lost = set(rng.choice(sown, size=flooded, replace=False).tolist())
+        for i in range(sown):
+            plot += 1
+            block = 1 + (plot - 1) % 4
+            cell, note = f"{values[i]:.1f}", ""
+            if i in lost:
+                cell, note = "", "flooded, not sampled"
+            rows.append([f"P{plot:02d}", block, mix, cell, note])
+    frame = pd.DataFrame(rows, columns=["plot", "block", DEMO_GROUP, DEMO_RESPONSE, "note"])
+    # The mess of real records, placed by hand so the walk-through can point at it.
+    rye = frame.index[frame[DEMO_GROUP] == "Cereal rye"]
+    frame.loc[rye[2], DEMO_RESPONSE] = "n.d."
+    frame.loc[rye[2], "note"] = "below detection limit (1.0 mg/kg)"
+    frame.loc[rye[7], DEMO_RESPONSE] = "n.d."
+    frame.loc[rye[7], "note"] = "below detection limit (1.0 mg/kg)"
+    frame.loc[rye[5], DEMO_RESPONSE] = "41.7"
+    frame.loc[rye[5], "note"] = "beside the manure heap"
+    frame.loc[rye[9], DEMO_GROUP] = "cereal rye"
+    blend = frame.index[frame[DEMO_GROUP] == "Six-species blend"]
+    frame.loc[blend[4], DEMO_RESPONSE] = "n.d."
+    frame.loc[blend[4], "note"] = "below detection limit (1.0 mg/kg)"
+    oat = frame.index[(frame[DEMO_GROUP] == "Oat / radish") & (frame[DEMO_RESPONSE] != "")]
+    value = float(frame.loc[oat[3], DEMO_RESPONSE])
+    frame.loc[oat[3], DEMO_RESPONSE] = f"{value * 10:.0f}"
+    frame.loc[oat[3], "note"] = "entered without the decimal point?"
+    return frame

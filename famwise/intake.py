@@ -1,0 +1,521 @@
+"""Read a file or DataFrame into a :class:`~famwise.layout.Layout` and a Ledger.
+
+Sources: CSV/TSV/TXT (delimiter sniffed among ``, ; tab |``; UTF-8 with or
+without a byte-order mark, UTF-16 with one, or an encoding you name; decimal
+comma by option), Excel (``.xlsx``/``.xlsm``, a sheet by name or the first),
+Parquet, or a pandas DataFrame.
+
+Layouts: *long* (one row per observation: a response column and a group
+column) or *wide* (one column per group, one value per cell).
+
+Group order (the order of codes and of every table): the ``order`` you give;
+else, for a DataFrame whose group column is an ordered ``Categorical``, its
+categories; else the order of first appearance in the source.
+
+Every value read is either used or listed in the Ledger with its reason:
+missing response, censored text (``"<0.5"``), a non-detect marker
+(``"n.d."``), other text, an infinite value, a missing group label, a blank
+row, or (wide layout) an empty cell.  Labels are stripped of surrounding
+space; labels that differ only by letter case or inner spacing raise a
+:class:`~famwise.errors.LabelSpellingWarning` naming the spellings and their
+counts, and are merged only with ``merge_spellings=True``.
+"""
+
+from __future__ import annotations
+
+import csv
+import difflib
+import io
+import os
+import re
+import warnings
+from collections import Counter
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+import pandas as pd
+
+from .errors import FamwiseInputError, LabelSpellingWarning
+from .layout import Layout
+from .ledger import Dropped, Ledger
+
+__all__ = ["Intake", "read", "TEXT_SUFFIXES", "EXCEL_SUFFIXES", "PARQUET_SUFFIXES"]
+
+TEXT_SUFFIXES = (".csv", ".tsv", ".txt", ".tab", ".dat")
+EXCEL_SUFFIXES = (".xlsx", ".xlsm")
+PARQUET_SUFFIXES = (".parquet", ".pq")
+
+_NA_TEXT = {"", "na", "n/a", "nan", "null", "none", "-", ".", "#n/a", "missing", "?"}
+_NOT_DETECTED = re.compile(
+    r"^(n\.?\s?d\.?|not\s+detected|bdl|<\s*(dl|lod|loq|mdl|rl))$", re.IGNORECASE)
+_CENSORED = re.compile(r"^[<>≤≥]=?\s*[-+]?[\d.,]+(e[-+]?\d+)?\s*\S*$", re.IGNORECASE)
+
+
+@dataclass(frozen=True)
+class Intake:
+    """What :func:`read` returns: the data to compare and their account."""
+
+    layout: Layout
+    ledger: Ledger
+
+
+# --- loading a raw table -----------------------------------------------------
+
+@dataclass(frozen=True)
+class _Raw:
+    header: list[str]
+    body: pd.DataFrame      # object cells, positional columns
+    rows: np.ndarray        # 1-based source row number of each body row
+    source: str
+    notes: tuple[str, ...]
+
+
+def _decode(data: bytes, encoding: str | None, path: str) -> str:
+    if data.startswith((b"\xff\xfe", b"\xfe\xff")):
+        return data.decode("utf-16")
+    enc = encoding or "utf-8-sig"
+    if enc.lower().replace("_", "-") in ("utf-8", "utf8"):
+        enc = "utf-8-sig"
+    try:
+        return data.decode(enc)
+    except LookupError:
+        raise FamwiseInputError(f"unknown encoding {encoding!r}") from None
+    except UnicodeDecodeError as exc:
+        raise FamwiseInputError(
+            f"{path!r} is not valid {encoding or 'UTF-8'} (byte 0x{data[exc.start]:02x} at "
+            f"offset {exc.start}); pass the file's encoding, e.g. encoding='latin-1'"
+        ) from None
+
+
+def _sniff(lines: list[str], decimal: str) -> str:
+    candidates = [d for d in (",", ";", "\t", "|") if not (d == decimal == ",")]
+    best, best_score = None, (0, 0.0)
+    for d in candidates:
+        counts = [len(r) for r in csv.reader(lines, delimiter=d)]
+        if not counts:
+            continue
+        mode, freq = Counter(counts).most_common(1)[0]
+        if mode < 2:
+            continue
+        score = (freq / len(counts), mode)
+        if score > best_score:
+            best, best_score = d, score
+    return best if best is not None else (";" if decimal == "," else ",")
+
+
+def _read_text(path: str, delimiter, decimal, encoding) -> tuple[pd.DataFrame, list[str]]:
+    with open(path, "rb") as fh:
+        data = fh.read()
+    text = _decode(data, encoding, path)
+    if not text.strip():
+        raise FamwiseInputError(f"{path!r} is empty")
+    sample = [ln for ln in text.splitlines()[:50] if ln.strip()]
+    if delimiter is None:
+        delimiter = "\t" if path.lower().endswith((".tsv", ".tab")) else _sniff(sample, decimal)
+        named = {",": "comma", ";": "semicolon", "\t": "tab", "|": "vertical bar"}[delimiter]
+        notes = [f"delimiter: {named} (detected)"]
+    else:
+        notes = [f"delimiter: {delimiter!r} (given)"]
+    try:
+        frame = pd.read_csv(io.StringIO(text), sep=delimiter, header=None, dtype=str,
+                            keep_default_na=False, skip_blank_lines=False,
+                            engine="c", quotechar='"')
+    except pd.errors.ParserError as exc:
+        m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", str(exc))
+        if m:
+            raise FamwiseInputError(
+                f"{path!r} line {m.group(2)} has {m.group(3)} fields but earlier lines have "
+                f"{m.group(1)}; check the delimiter or quote the field") from None
+        raise FamwiseInputError(f"{path!r} cannot be read as delimited text: "
+                                f"{str(exc).strip().splitlines()[0]}") from None
+    return frame, notes
+
+
+def _read_excel(path: str, sheet) -> tuple[pd.DataFrame, list[str]]:
+    try:
+        import openpyxl
+    except ImportError:  # pragma: no cover - depends on the install
+        raise FamwiseInputError(
+            "reading Excel files needs openpyxl: pip install 'famwise[excel]'") from None
+    try:
+        book = openpyxl.load_workbook(path, read_only=True, data_only=True)
+    except Exception as exc:
+        raise FamwiseInputError(f"{path!r} cannot be opened as an Excel workbook "
+                                f"({type(exc).__name__})") from None
+    names = book.sheetnames
+    book.close()
+    if sheet is None:
+        sheet = names[0]
+    elif isinstance(sheet, int):
+        if not 0 <= sheet < len(names):
+            raise FamwiseInputError(
+                f"{path!r} has {len(names)} sheet(s); sheet index {sheet} is out of range")
+        sheet = names[sheet]
+    elif sheet not in names:
+        close = difflib.get_close_matches(str(sheet), names, n=1)
+        hint = f"; did you mean {close[0]!r}?" if close else ""
+        raise FamwiseInputError(
+            f"{path!r} has no sheet {sheet!r} (sheets: {', '.join(map(repr, names))}){hint}")
+    frame = pd.read_excel(path, sheet_name=sheet, header=None, dtype=object)
+    return frame, [f"sheet: {sheet!r}"]
+
+
+def _load(source, *, sheet, delimiter, decimal, encoding) -> _Raw:
+    if isinstance(source, pd.DataFrame):
+        if source.shape[1] == 0 or source.shape[0] == 0:
+            raise FamwiseInputError("the DataFrame is empty")
+        body = source.reset_index(drop=True)
+        header = [str(c) for c in body.columns]
+        body.columns = range(body.shape[1])
+        return _Raw(header, body, np.arange(1, len(body) + 1), "<DataFrame>", ())
+    path = os.fspath(source)
+    if not os.path.exists(path):
+        raise FamwiseInputError(f"file not found: {path!r}")
+    if os.path.isdir(path):
+        raise FamwiseInputError(f"{path!r} is a folder, not a data file")
+    if os.path.getsize(path) == 0:
+        raise FamwiseInputError(f"{path!r} is empty")
+    suffix = os.path.splitext(path)[1].lower()
+    if suffix in PARQUET_SUFFIXES:
+        try:
+            body = pd.read_parquet(path)
+        except ImportError:  # pragma: no cover - depends on the install
+            raise FamwiseInputError(
+                "reading Parquet files needs pyarrow: pip install 'famwise[parquet]'") from None
+        except Exception as exc:
+            raise FamwiseInputError(f"{path!r} cannot be read as Parquet "
+                                    f"({type(exc).__name__})") from None
+        if body.shape[0] == 0:
+            raise FamwiseInputError(f"{path!r} has no records")
+        header = [str(c) for c in body.columns]
+        body = body.reset_index(drop=True)
+        body.columns = range(body.shape[1])
+        return _Raw(header, body, np.arange(1, len(body) + 1), path, ())
+    if suffix in EXCEL_SUFFIXES:
+        frame, notes = _read_excel(path, sheet)
+    elif suffix in TEXT_SUFFIXES or suffix == "":
+        frame, notes = _read_text(path, delimiter, decimal, encoding)
+    elif suffix == ".xls":
+        raise FamwiseInputError(
+            f"{path!r} is an old-style .xls workbook; save it as .xlsx or CSV")
+    else:
+        raise FamwiseInputError(
+            f"{path!r}: unsupported file type {suffix!r} (expected one of "
+            f"{', '.join(TEXT_SUFFIXES + EXCEL_SUFFIXES + PARQUET_SUFFIXES)})")
+    # The header is the first row holding anything; rows before it are blank.
+    blank = frame.apply(lambda col: col.map(_is_blank)).all(axis=1).to_numpy()
+    filled = np.flatnonzero(~blank)
+    if filled.size == 0:
+        raise FamwiseInputError(f"{path!r} is empty")
+    h = int(filled[0])
+    header = ["" if _is_blank(x) else str(x).strip() for x in frame.iloc[h]]
+    body = frame.iloc[h + 1:].reset_index(drop=True)
+    if body.shape[0] == 0:
+        raise FamwiseInputError(f"{path!r} has a header row but no data rows")
+    # Source row of body row i: frame index h + 1 + i, shown 1-based.
+    return _Raw(header, body, np.arange(h + 2, h + 2 + len(body)), path, tuple(notes))
+
+
+def _is_blank(x) -> bool:
+    if x is None:
+        return True
+    if isinstance(x, float) and np.isnan(x):
+        return True
+    return isinstance(x, str) and x.strip() == ""
+
+
+# --- parsing values ----------------------------------------------------------
+
+def _parse_values(cells: pd.Series, decimal: str) -> tuple[np.ndarray, np.ndarray, list]:
+    """Return (values, reason codes, raw texts); reason '' means usable."""
+    n = len(cells)
+    raw = cells.to_numpy(dtype=object)
+    values = np.full(n, np.nan)
+    reasons = np.full(n, "", dtype=object)
+    texts = [""] * n
+    if pd.api.types.is_numeric_dtype(cells.dtype) and not pd.api.types.is_bool_dtype(cells.dtype):
+        values = cells.to_numpy(dtype=np.float64, na_value=np.nan)
+        reasons[np.isnan(values)] = "missing-response"
+        reasons[np.isinf(values)] = "infinite"
+        texts = ["" if np.isnan(v) else repr(float(v)) for v in values]
+        return values, reasons, texts
+    strings = []
+    for i, x in enumerate(raw):
+        if isinstance(x, (bool, np.bool_)):
+            strings.append(str(x))
+        elif isinstance(x, (int, float, np.integer, np.floating)):
+            if np.isnan(x):
+                strings.append("")
+            else:
+                values[i] = float(x)
+                strings.append(None)   # already numeric
+                continue
+        elif x is None or x is pd.NA or x is pd.NaT:
+            strings.append("")
+        else:
+            strings.append(str(x).strip())
+    for i, s in enumerate(strings):
+        if s is None:
+            texts[i] = repr(values[i])
+            continue
+        texts[i] = s
+        if s.lower() in _NA_TEXT:
+            reasons[i] = "missing-response"
+            continue
+        t = s.replace(",", ".") if decimal == "," else s
+        try:
+            values[i] = float(t.replace("\u2212", "-"))
+        except ValueError:
+            if _NOT_DETECTED.match(s):
+                reasons[i] = "not-detected"
+            elif _CENSORED.match(s):
+                reasons[i] = "below-limit"
+            else:
+                reasons[i] = "text"
+    bad_inf = (reasons == "") & np.isinf(values)
+    reasons[bad_inf] = "infinite"
+    bad_nan = (reasons == "") & np.isnan(values)
+    reasons[bad_nan] = "missing-response"
+    return values, reasons, texts
+
+
+def _labels(cells: pd.Series) -> np.ndarray:
+    out = np.empty(len(cells), dtype=object)
+    for i, x in enumerate(cells.to_numpy(dtype=object)):
+        if _is_blank(x) or x is pd.NA:
+            out[i] = ""
+        elif isinstance(x, float) and x.is_integer():
+            out[i] = str(int(x))          # Excel reads label 3 as 3.0
+        else:
+            out[i] = str(x).strip()
+    return out
+
+
+def _find_column(header: list[str], name, source: str, role: str) -> int:
+    if name is None:
+        raise FamwiseInputError(f"name the {role} column (columns in {source!r}: "
+                                f"{', '.join(map(repr, header))})")
+    name = str(name)
+    if header.count(name) > 1:
+        raise FamwiseInputError(f"{source!r} has {header.count(name)} columns named {name!r}")
+    if name in header:
+        return header.index(name)
+    folded = [h.casefold() for h in header]
+    if folded.count(name.strip().casefold()) == 1:
+        return folded.index(name.strip().casefold())
+    close = difflib.get_close_matches(name, header, n=1, cutoff=0.5)
+    hint = f"; did you mean {close[0]!r}?" if close else ""
+    raise FamwiseInputError(
+        f"{source!r} has no {role} column {name!r} (columns: "
+        f"{', '.join(map(repr, header))}){hint}")
+
+
+def _count(n: int, word: str) -> str:
+    return f"{n} {word}" if n == 1 else f"{n} {word}s"
+
+
+def _spelling_key(label: str) -> str:
+    return " ".join(label.split()).casefold()
+
+
+# --- public ------------------------------------------------------------------
+
+def read(source, response: str | None = None, group: str | None = None, *,
+         wide: bool = False, columns: Sequence[str] | None = None,
+         sheet: str | int | None = None, delimiter: str | None = None,
+         decimal: str = ".", encoding: str | None = None,
+         order: Sequence[str] | None = None,
+         merge_spellings: bool = False) -> Intake:
+    """Read ``source`` and return the usable data and an account of every row.
+
+    Parameters
+    ----------
+    source : path-like or pandas.DataFrame
+        A CSV/TSV/TXT, Excel (.xlsx) or Parquet file, or a DataFrame.
+    response, group : str
+        Long layout: the column holding the measured values and the column
+        holding the group labels.  Ignored when ``wide=True``.
+    wide : bool, default=False
+        Wide layout: every column (or those in ``columns``) is a group.
+    columns : list of str, optional
+        Wide layout: the group columns to use (default: all).
+    sheet : str or int, optional
+        Excel sheet by name or 0-based index (default: the first).
+    delimiter : str, optional
+        Field delimiter of a text file (default: detected).
+    decimal : {".", ","}, default="."
+        Decimal mark of numbers in a text file.
+    encoding : str, optional
+        Text encoding (default UTF-8, with or without a byte-order mark).
+    order : list of str, optional
+        The group order to use; it must list every group exactly once.
+    merge_spellings : bool, default=False
+        Merge labels that differ only by case or inner spacing into their most
+        frequent spelling.
+
+    Returns
+    -------
+    Intake
+        ``.layout`` (values, group codes, labels, source rows) and ``.ledger``.
+
+    Raises
+    ------
+    FamwiseInputError
+        With a one-line message naming the file, column, row or value.
+    """
+    if decimal not in (".", ","):
+        raise FamwiseInputError(f"decimal must be '.' or ','; got {decimal!r}")
+    if delimiter is not None and (not isinstance(delimiter, str) or len(delimiter) != 1):
+        raise FamwiseInputError(f"delimiter must be a single character; got {delimiter!r}")
+    raw = _load(source, sheet=sheet, delimiter=delimiter, decimal=decimal,
+                encoding=encoding)
+    src = raw.source
+    notes = list(raw.notes)
+    if wide:
+        values, labels, rows, dropped, n_read = _wide(raw, columns, decimal)
+        unit = "cell"
+        response_name, group_name = "value", "column"
+    else:
+        values, labels, rows, dropped, n_read, response_name, group_name = \
+            _long(raw, response, group, decimal)
+        unit = "row"
+    # Spelling variants among the labels that are used.
+    counts = Counter(labels)
+    by_key: dict[str, list[str]] = {}
+    for lab in counts:
+        by_key.setdefault(_spelling_key(lab), []).append(lab)
+    mapping = {}
+    for spellings in by_key.values():
+        if len(spellings) < 2:
+            continue
+        spellings.sort(key=lambda s: -counts[s])     # stable: ties keep first seen
+        listed = ", ".join(f"{s!r} ({_count(counts[s], unit)})" for s in spellings)
+        if merge_spellings:
+            for s in spellings[1:]:
+                mapping[s] = spellings[0]
+            notes.append(f"merged spellings {listed} into {spellings[0]!r}")
+        else:
+            warnings.warn(LabelSpellingWarning(
+                f"group labels {listed} in {src!r} differ only by case or spacing; "
+                f"they are kept apart (pass merge_spellings=True, or --merge-spellings, "
+                f"to merge them)"), stacklevel=2)
+            notes.append(f"labels {listed} differ only by case or spacing; kept apart")
+    if mapping:
+        labels = [mapping.get(lab, lab) for lab in labels]
+    # Group order.
+    first_seen = list(dict.fromkeys(labels))
+    if order is not None:
+        order = [str(o).strip() for o in order]
+        missing = [g for g in first_seen if g not in order]
+        extra = [g for g in order if g not in first_seen]
+        if extra:
+            raise FamwiseInputError(
+                f"order names {extra[0]!r}, which is not a group in {src!r} "
+                f"(groups: {', '.join(map(repr, first_seen))})")
+        if missing:
+            raise FamwiseInputError(f"order leaves out group {missing[0]!r}")
+        if len(set(order)) != len(order):
+            raise FamwiseInputError("order lists a group twice")
+        label_order = order
+    elif (not wide and isinstance(source, pd.DataFrame)
+          and isinstance(source[group_name].dtype, pd.CategoricalDtype)
+          and source[group_name].cat.ordered):
+        label_order = [str(c).strip() for c in source[group_name].cat.categories
+                       if str(c).strip() in counts or str(c).strip() in mapping.values()]
+    else:
+        label_order = first_seen
+    index = {lab: i for i, lab in enumerate(label_order)}
+    codes = np.array([index[lab] for lab in labels], dtype=np.int64)
+    values = np.asarray(values, dtype=np.float64)
+    ledger = Ledger(src, unit, n_read, int(values.size), tuple(dropped), tuple(notes))
+    layout = Layout(values=values, codes=codes, labels=tuple(label_order),
+                    rows=np.asarray(rows, dtype=np.int64), response=response_name,
+                    group=group_name, source=src)
+    _validate(layout, ledger)
+    return Intake(layout, ledger)
+
+
+def _long(raw: _Raw, response, group, decimal):
+    src = raw.source
+    r = _find_column(raw.header, response, src, "response")
+    g = _find_column(raw.header, group, src, "group")
+    if r == g:
+        raise FamwiseInputError(
+            f"response and group are the same column {raw.header[r]!r}")
+    rname, gname = raw.header[r], raw.header[g]
+    values, reasons, texts = _parse_values(raw.body[r], decimal)
+    labels = _labels(raw.body[g])
+    blank_row = raw.body.apply(lambda col: col.map(_is_blank)).all(axis=1).to_numpy()
+    if not np.any(reasons == ""):
+        shown = ", ".join(repr(t) for t in dict.fromkeys(x for x in texts if x)) or "only empty cells"
+        raise FamwiseInputError(
+            f"response column {rname!r} in {src!r} has no numeric values "
+            f"(it holds {shown[:80]})")
+    dropped, keep = [], np.zeros(len(values), dtype=bool)
+    for i in range(len(values)):
+        if blank_row[i]:
+            reason, col, text = "blank-row", "", ""
+        elif reasons[i]:
+            reason, col, text = reasons[i], rname, texts[i]
+        elif labels[i] == "" or labels[i].lower() in ("nan", "na", "n/a", "null", "none"):
+            reason, col, text = "missing-group", gname, labels[i]
+        else:
+            keep[i] = True
+            continue
+        dropped.append(Dropped(int(raw.rows[i]), col, text, reason, labels[i]))
+    return (values[keep], list(labels[keep]), raw.rows[keep], dropped,
+            len(values), rname, gname)
+
+
+def _wide(raw: _Raw, columns, decimal):
+    src = raw.source
+    header = raw.header
+    if columns is None:
+        use = [j for j, h in enumerate(header) if h]
+        if len(use) < len(header):
+            raise FamwiseInputError(
+                f"{src!r} has a column without a header (column {header.index('') + 1}); "
+                f"name it or choose the group columns")
+    else:
+        use = [_find_column(header, c, src, "group") for c in columns]
+    values, labels, rows, dropped = [], [], [], []
+    for j in use:
+        v, reasons, texts = _parse_values(raw.body[j], decimal)
+        for i in range(len(v)):
+            if reasons[i] == "missing-response" and texts[i] == "":
+                dropped.append(Dropped(int(raw.rows[i]), header[j], "", "empty-cell", header[j]))
+            elif reasons[i]:
+                dropped.append(Dropped(int(raw.rows[i]), header[j], texts[i], reasons[i],
+                                       header[j]))
+            else:
+                values.append(v[i])
+                labels.append(header[j])
+                rows.append(raw.rows[i])
+    if not values:
+        raise FamwiseInputError(f"the group columns of {src!r} hold no numeric values")
+    dropped.sort(key=lambda d: (d.row, use.index(header.index(d.column))))
+    return (np.array(values), labels, np.array(rows), dropped,
+            len(use) * len(raw.body))
+
+
+def _validate(layout: Layout, ledger: Ledger) -> None:
+    src = ledger.source
+    if layout.k < 2:
+        only = f" (only {layout.labels[0]!r})" if layout.k == 1 else ""
+        raise FamwiseInputError(
+            f"{src!r} has fewer than two groups with usable values{only}; "
+            f"a comparison needs at least two")
+    n = layout.stats.n
+    lost = Counter(d.group for d in ledger.dropped)
+    for code in np.flatnonzero(n < 2):
+        label = layout.labels[code]
+        extra = (f" ({_count(lost[label], ledger.unit)} set aside)" if lost[label] else "")
+        raise FamwiseInputError(
+            f"group {label!r} in {src!r} has only {_count(int(n[code]), 'usable value')}{extra}; "
+            f"each group needs at least two (fix its {ledger.unit}s or remove the group)")
+    v = layout.values
+    if np.all(v == v[0]):
+        raise FamwiseInputError(
+            f"all {v.size} usable values of {layout.response!r} in {src!r} equal {v[0]:g}; "
+            f"there is no variation to compare")
