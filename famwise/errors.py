@@ -6,7 +6,10 @@ one exists, the fix.  The command line prints that line and exits with code 2;
 anything else escaping is an internal error (exit code 1).
 """
 
+import difflib
+
 __all__ = [
+    "did_you_mean",
     "FamwiseError",
     "FamwiseInputError",
     "FamwiseWarning",
@@ -42,3 +45,22 @@ class SmallGroupWarning(FamwiseWarning):
 
 class DroppedRowsWarning(FamwiseWarning):
     """Input rows were set aside (each one is listed in the Ledger)."""
+
+
+def did_you_mean(value, options) -> str:
+    """Return ``"; did you mean 'x'?"`` for the option closest to ``value``, or ``""``.
+
+    Tries, in turn: the same text ignoring case, a unique option containing
+    the value (or contained in it), then the closest by ``difflib``.
+    """
+    text = str(value).strip().casefold()
+    options = [str(o) for o in options]
+    folded = [o.casefold() for o in options]
+    if text in folded:
+        return f"; did you mean {options[folded.index(text)]!r}?"
+    if text:
+        holders = [o for o, f in zip(options, folded) if text in f or (f and f in text)]
+        if len(holders) == 1:
+            return f"; did you mean {holders[0]!r}?"
+    close = difflib.get_close_matches(text, folded, n=1, cutoff=0.5)
+    return f"; did you mean {options[folded.index(close[0])]!r}?" if close else ""

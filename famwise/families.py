@@ -24,14 +24,13 @@ small recursive-descent parser (never ``eval``); the weights must sum to zero.
 
 from __future__ import annotations
 
-import difflib
 import re
 from dataclasses import dataclass, field
 from typing import Mapping, Sequence
 
 import numpy as np
 
-from .errors import FamwiseInputError
+from .errors import FamwiseInputError, did_you_mean
 
 __all__ = ["Family", "FAMILY_KINDS", "all_pairs", "vs_reference", "contrasts",
            "build_family", "parse_contrast"]
@@ -107,8 +106,7 @@ def _find_label(labels: Sequence[str], label: str, what: str) -> int:
         return list(labels).index(label)
     except ValueError:
         pass
-    close = difflib.get_close_matches(str(label), [str(x) for x in labels], n=1)
-    hint = f"; did you mean {close[0]!r}?" if close else ""
+    hint = did_you_mean(str(label), [str(x) for x in labels])
     raise FamwiseInputError(
         f"{what} {label!r} is not a group label (labels: "
         f"{', '.join(repr(x) for x in labels)}){hint}")
@@ -325,8 +323,7 @@ def build_family(labels: Sequence[str], family: str = "all-pairs",
                  reference: str | None = None, contrasts_spec=None) -> Family:
     """Return the family named ``family`` over ``labels``."""
     if family not in FAMILY_KINDS:
-        close = difflib.get_close_matches(str(family), FAMILY_KINDS, n=1)
-        hint = f"; did you mean {close[0]!r}?" if close else ""
+        hint = did_you_mean(str(family), FAMILY_KINDS)
         raise FamwiseInputError(
             f"family must be one of {', '.join(FAMILY_KINDS)}; got {family!r}{hint}")
     if family == "all-pairs":

@@ -24,7 +24,6 @@ counts, and are merged only with ``merge_spellings=True``.
 from __future__ import annotations
 
 import csv
-import difflib
 import io
 import os
 import re
@@ -36,7 +35,7 @@ from typing import Sequence
 import numpy as np
 import pandas as pd
 
-from .errors import FamwiseInputError, LabelSpellingWarning
+from .errors import FamwiseInputError, did_you_mean, LabelSpellingWarning
 from .layout import Layout
 from .ledger import Dropped, Ledger
 
@@ -153,8 +152,7 @@ def _read_excel(path: str, sheet) -> tuple[pd.DataFrame, list[str]]:
                 f"{path!r} has {len(names)} sheet(s); sheet index {sheet} is out of range")
         sheet = names[sheet]
     elif sheet not in names:
-        close = difflib.get_close_matches(str(sheet), names, n=1)
-        hint = f"; did you mean {close[0]!r}?" if close else ""
+        hint = did_you_mean(str(sheet), names)
         raise FamwiseInputError(
             f"{path!r} has no sheet {sheet!r} (sheets: {', '.join(map(repr, names))}){hint}")
     frame = pd.read_excel(path, sheet_name=sheet, header=None, dtype=object)
@@ -304,8 +302,7 @@ def _find_column(header: list[str], name, source: str, role: str) -> int:
     folded = [h.casefold() for h in header]
     if folded.count(name.strip().casefold()) == 1:
         return folded.index(name.strip().casefold())
-    close = difflib.get_close_matches(name, header, n=1, cutoff=0.5)
-    hint = f"; did you mean {close[0]!r}?" if close else ""
+    hint = did_you_mean(name, header)
     raise FamwiseInputError(
         f"{source!r} has no {role} column {name!r} (columns: "
         f"{', '.join(map(repr, header))}){hint}")

@@ -9,11 +9,10 @@ The catalogue names where each lives so that importing famwise stays cheap
 
 from __future__ import annotations
 
-import difflib
 import importlib
 from dataclasses import dataclass
 
-from .errors import FamwiseInputError
+from .errors import FamwiseInputError, did_you_mean
 
 __all__ = ["ProcedureInfo", "CATALOGUE", "check_procedure", "get_procedure",
            "run_procedure"]
@@ -101,8 +100,7 @@ def check_procedure(name: str) -> ProcedureInfo:
     try:
         return CATALOGUE[name]
     except (KeyError, TypeError):
-        close = difflib.get_close_matches(str(name), list(CATALOGUE), n=1)
-        hint = f"; did you mean {close[0]!r}?" if close else ""
+        hint = did_you_mean(str(name), list(CATALOGUE))
         raise FamwiseInputError(
             f"unknown procedure {name!r}{hint} (known: {', '.join(CATALOGUE)}, "
             f"or 'auto')") from None
