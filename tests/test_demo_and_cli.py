@@ -1,0 +1,94 @@
+"""The demo scenario and the inspect/demo commands, end to end.
+
+The demo data are invented (famwise.demo); these tests check that the CSV in
+demos/ is what the seeded generator makes, that every planted problem shows
+up in the ledger, and that the commands write what they say.  The ledger
+counts are the project's own contract, not a reference value.
+"""
+
+import json
+import pathlib
+import subprocess
+import sys
+
+import pandas as pd
+import pytest
+
+from famwise.cli import main
+from famwise.demo import DEMO_GROUP, DEMO_RESPONSE, MIXES, covercrop_trial
+from famwise.intake import read
+
+REPO = pathlib.Path(__file__).resolve().parents[1]
+CSV = REPO / "demos" / "covercrop_nitrate.csv"
+
+
+def test_demo_csv_is_the_generator_output():
+    on_disk = pd.read_csv(CSV, dtype=str, keep_default_na=False)
+    fresh = covercrop_trial().astype(str)
+    pd.testing.assert_frame_equal(on_disk, fresh)
+
+
+def test_demo_ledger_shows_every_planted_problem():
+    intake = read(CSV, DEMO_RESPONSE, DEMO_GROUP, merge_spellings=True)
+    led = intake.ledger
+    flooded = sum(f for _, _, f in MIXES.values())
+    assert led.counts() == {"not-detected": 3, "missing-response": flooded}
+    assert led.read == sum(s for s, _, _ in MIXES.values())
+    assert intake.layout.labels == tuple(MIXES)
+    n = dict(zip(intake.layout.labels, intake.layout.stats.n))
+    assert min(n.values()) == 4 and max(n.values()) == 12
+    assert any("'cereal rye' (1 row)" in note for note in led.notes)
+
+
+def test_demo_command_writes_its_files(tmp_path, capsys):
+    out = tmp_path / "demo"
+    assert main(["demo", "--out", str(out)]) == 0
+    printed = capsys.readouterr().out
+    assert "53 rows read, 47 used, 6 set aside" in printed
+    for name in ("groups.csv", "ledger.csv", "summary.txt", "covercrop_nitrate.csv"):
+        assert (out / name).stat().st_size > 0
+    groups = pd.read_csv(out / "groups.csv")
+    assert list(groups["group"]) == list(MIXES)
+    # A second run without --force refuses, and with --force replaces.
+    assert main(["demo", "--out", str(out)]) == 2
+    assert "already holds" in capsys.readouterr().err
+    assert main(["demo", "--out", str(out), "--force", "--quiet"]) == 0
+
+
+def test_inspect_formats(capsys):
+    args = ["inspect", str(CSV), "-r", DEMO_RESPONSE, "-g", DEMO_GROUP, "--merge-spellings"]
+    assert main(args) == 0
+    text = capsys.readouterr().out
+    assert "Rows" in text and "Groups" in text and "Crimson clover" in text
+    assert main(args + ["--format", "json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["ledger"]["used"] == 47 and len(doc["groups"]) == 6
+    assert main(args + ["--format", "csv"]) == 0
+    lines = capsys.readouterr().out.splitlines()
+    assert lines[0].startswith("group,n,mean,sd")
+    assert len(lines) == 7
+
+
+def test_inspect_warns_about_spellings_on_stderr(capsys):
+    # Without --merge-spellings the typo makes a one-plot group: a warning, then an error.
+    assert main(["inspect", str(CSV), "-r", DEMO_RESPONSE, "-g", DEMO_GROUP]) == 2
+    err = capsys.readouterr().err.splitlines()
+    assert err[0].startswith("famwise: warning: group labels 'Cereal rye' (8 rows), "
+                             "'cereal rye' (1 row)")
+    assert err[1].startswith("famwise: error: group 'cereal rye'")
+
+
+def test_csv_output_neutralises_formulas(tmp_path, capsys):
+    path = tmp_path / "f.csv"
+    path.write_text("g,y\n=cmd|'/c calc'!A1,1\n=cmd|'/c calc'!A1,2\n-2,3\n-2,4\n")
+    assert main(["inspect", str(path), "-r", "y", "-g", "g", "--format", "csv"]) == 0
+    out = capsys.readouterr().out
+    assert "'=cmd|" in out and "\n=cmd" not in out
+    assert "\n-2," in out            # a plain negative number label is left alone
+
+
+@pytest.mark.parametrize("argv", [["--version"], ["demo", "--help"], ["inspect", "--help"]])
+def test_help_and_version_exit_0(argv):
+    proc = subprocess.run([sys.executable, "-m", "famwise", *argv], capture_output=True,
+                          text=True, timeout=120)
+    assert proc.returncode == 0 and proc.stdout
