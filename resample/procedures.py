@@ -149,10 +149,27 @@ def _orientation(alternative):
     return (1.0 if alternative != "less" else -1.0), alternative == "two-sided"
 
 
+# Above this many values (8 MiB of float64 per 2**20) the value-shuffling
+# kernel is memory-bound and the label-shuffling one is faster.
+LABEL_KERNEL_ABOVE = 1 << 17
+
+
 def _permutation_problem(layout, family, obs, opts) -> engine.ResamplingProblem:
     st = layout.stats
     n = st.n.astype(np.int64)
     grand = float(np.sum(st.n * st.mean) / st.n.sum())
+    fw = family_weights(family)
+    sign, two_sided = _orientation(opts.alternative)
+    order = np.argsort(-obs.u, kind="stable").astype(np.int64)
+    tail = (fw.row_ptr, fw.col, fw.w, fw.w2, obs.se2_floor, sign, two_sided,
+            obs.thr, order)
+    if layout.n_total > LABEL_KERNEL_ABOVE:
+        x = layout.values - grand
+        x = np.ascontiguousarray(x - x.mean())
+        dtype = np.int8 if layout.k <= 127 else (np.int16 if layout.k <= 32767 else np.int32)
+        args = (x, layout.codes.astype(dtype), n, opts.statistic == "pooled") + tail
+        return engine.ResamplingProblem("permutation_labels_chunk", args,
+                                        layout.n_total, family.m)
     x = layout.values[np.argsort(layout.codes, kind="stable")] - grand
     x = x - x.mean()                      # centre by the grand mean, second pass
     largest = int(np.argmax(n))
@@ -164,13 +181,8 @@ def _permutation_problem(layout, family, obs, opts) -> engine.ResamplingProblem:
     for s, g in enumerate(others):
         hi[s], lo[s] = top, top - n[g]
         top -= n[g]
-    fw = family_weights(family)
-    sign, two_sided = _orientation(opts.alternative)
-    order = np.argsort(-obs.u, kind="stable").astype(np.int64)
     args = (np.ascontiguousarray(x), lo, hi, np.asarray(others, dtype=np.int64), n,
-            largest, float(x.sum()), float(x @ x), opts.statistic == "pooled",
-            fw.row_ptr, fw.col, fw.w, fw.w2, obs.se2_floor, sign, two_sided,
-            obs.thr, order)
+            largest, float(x.sum()), float(x @ x), opts.statistic == "pooled") + tail
     return engine.ResamplingProblem("permutation_chunk", args, layout.n_total, family.m)
 
 
