@@ -1,0 +1,22 @@
+"""Diagnostics on within-group residuals, the routing policy and calibration.
+
+Installed as ``famwise.diagnostics`` (see pyproject.toml).  :func:`run_checks`
+returns the :class:`Findings` that :mod:`famwise.diagnostics.route` turns
+into a procedure and its reasons.
+"""
+
+from ..layout import Layout
+from .check import VERDICTS, Check, Findings
+from .design import design_checks
+from .policy import Policy, load_policy
+from .shape import shape_checks
+from .spread import spread_checks
+
+__all__ = ["Check", "Findings", "Policy", "VERDICTS", "load_policy", "run_checks"]
+
+
+def run_checks(layout: Layout, policy: Policy | None = None) -> Findings:
+    """Run the shape, spread and design checks on ``layout``."""
+    policy = policy or Policy()
+    return Findings(shape=shape_checks(layout, policy), spread=spread_checks(layout, policy),
+                    design=design_checks(layout, policy))

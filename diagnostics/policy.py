@@ -1,0 +1,102 @@
+"""The routing policy's thresholds, as data (every one configurable and recorded).
+
+Defaults and where they come from:
+
+* ``outlier_z = 3.5``: modified z-score cut-off of Iglewicz & Hoaglin (1993),
+  *How to Detect and Handle Outliers*, ASQC, p. 11.
+* ``gross_outlier_z = 7.0``: twice that; our policy (no source): such a value
+  is far enough out to move a mean on its own.
+* ``sd_ratio_limit = 2.0``: largest over smallest SD; a common rule of thumb,
+  no source.
+* ``skew_limit = 1.0`` and ``kurtosis_limit = 2.0`` (excess): magnitudes that
+  decide shape at large N, where every normality test rejects trivially;
+  common practice, no source.
+* ``pvalue_decides_below = 300``: up to this many residuals the normality
+  test's p-value decides the shape verdict; above it the magnitudes do.
+* ``shapiro_max = 5000``: Shapiro–Wilk up to this many residuals (scipy's
+  p-value is accurate up to 5000), Anderson–Darling above.
+* ``small_group = 5``: groups under five observations trigger a warning and
+  a preference for exact or resampling procedures (DESIGN.md).
+* ``check_alpha = 0.05``: level of the preliminary tests.
+* ``games_howell_min_n = 10``: below it Games–Howell is mildly liberal when
+  small groups carry large SDs (about 0.065 at n = 4..30 in an independent
+  simulation; see the unequal-variance tests), so Dunnett's T3 is preferred
+  unless the quick calibration shows Games–Howell holds its level.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+from dataclasses import dataclass
+
+from ..errors import FamwiseInputError
+
+__all__ = ["Policy", "load_policy"]
+
+
+@dataclass(frozen=True)
+class Policy:
+    """Thresholds of the checks and the routing; see the module notes."""
+
+    check_alpha: float = 0.05
+    outlier_z: float = 3.5
+    gross_outlier_z: float = 7.0
+    sd_ratio_limit: float = 2.0
+    skew_limit: float = 1.0
+    kurtosis_limit: float = 2.0
+    pvalue_decides_below: int = 300
+    shapiro_max: int = 5000
+    small_group: int = 5
+    games_howell_min_n: int = 10
+    calibrate_candidates: bool = True
+    calibration_replicates: int = 4000
+
+    def replace(self, **changes) -> "Policy":
+        """Return a copy with ``changes`` applied (names checked)."""
+        known = {f.name: f for f in dataclasses.fields(self)}
+        for key, value in changes.items():
+            if key not in known:
+                from ..errors import did_you_mean
+                raise FamwiseInputError(
+                    f"unknown policy setting {key!r}{did_you_mean(key, known)} "
+                    f"(settings: {', '.join(known)})")
+            kind = type(getattr(self, key))
+            if kind is bool and not isinstance(value, bool):
+                raise FamwiseInputError(f"policy setting {key!r} must be true or false; "
+                                        f"got {value!r}")
+            if kind in (int, float) and (isinstance(value, bool)
+                                         or not isinstance(value, (int, float))):
+                raise FamwiseInputError(f"policy setting {key!r} must be a number; "
+                                        f"got {value!r}")
+            if kind in (int, float) and value <= 0:
+                raise FamwiseInputError(f"policy setting {key!r} must be positive; "
+                                        f"got {value!r}")
+        return dataclasses.replace(self, **changes)
+
+    def to_dict(self) -> dict:
+        return dataclasses.asdict(self)
+
+
+def load_policy(path: str | os.PathLike | None = None, **overrides) -> Policy:
+    """Return the default policy, updated from a TOML file and then ``overrides``.
+
+    The TOML file holds settings at the top level or under a ``[policy]``
+    table, e.g. ``sd_ratio_limit = 3.0``.
+    """
+    policy = Policy()
+    if path is not None:
+        try:
+            import tomllib
+        except ImportError:  # Python 3.10
+            import tomli as tomllib  # type: ignore[no-redef]
+        try:
+            with open(path, "rb") as fh:
+                doc = tomllib.load(fh)
+        except FileNotFoundError:
+            raise FamwiseInputError(f"policy file not found: {os.fspath(path)!r}") from None
+        except tomllib.TOMLDecodeError as exc:
+            raise FamwiseInputError(f"policy file {os.fspath(path)!r} is not valid TOML: "
+                                    f"{exc}") from None
+        policy = policy.replace(**doc.get("policy", doc))
+    return policy.replace(**overrides) if overrides else policy
