@@ -22,6 +22,7 @@ from __future__ import annotations
 import os
 import sys
 import time
+import warnings
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -251,7 +252,10 @@ def _execute(problem, stepdown, tasks, n_jobs, backend, scheduler, on_chunk):
                 # nothing partial leaves this function.
                 close = getattr(gen, "close", None)
                 if close is not None:
-                    close()
+                    with warnings.catch_warnings():
+                        # joblib reports chunks finished but not collected.
+                        warnings.simplefilter("ignore", UserWarning)
+                        close()
     finally:
         if opened is not None:
             opened.close()
