@@ -1,0 +1,250 @@
+"""The routing policy: from the checks to a procedure, with reasons.
+
+:func:`choose` applies the policy of DESIGN.md to the :class:`Findings`:
+
+1. shape poor (normality rejected while the p-value decides, large skew or
+   tails, or gross outliers) -> resampling: permutation max-T with Welch
+   statistics when the spreads agree, bootstrap max-t when they do not (the
+   permutation is liberal when small groups carry large spreads);
+2. shape fine, spreads unequal -> unequal-variance procedures: Games–Howell
+   for all pairs with groups of ``policy.games_howell_min_n`` or more,
+   otherwise Dunnett's T3 unless a quick calibration at the observed sizes and
+   SDs shows Games–Howell within alpha + 2 Monte Carlo SE; Welch–Dunnett
+   against a reference; Dunnett's T3 for contrasts;
+3. shape and spread fine -> classical: Tukey–Kramer for all pairs, Dunnett
+   against a reference, and for contrasts the shorter of Šidák and Scheffé.
+
+Groups under ``policy.small_group`` observations add a warning.  A user can
+force a procedure; the route then says so and lists the checks that argue
+against it.  Every alternative set aside is listed with the reason.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import stats
+
+from ..families import Family
+from ..layout import Layout
+from ..procedures import CATALOGUE, check_procedure
+from .check import Findings
+from .policy import Policy
+
+__all__ = ["Route", "Alternative", "choose", "crosscheck_procedure", "shape_poor",
+           "spread_unequal"]
+
+
+@dataclass(frozen=True)
+class Alternative:
+    """A procedure that was considered and set aside, and why."""
+
+    procedure: str
+    why: str
+
+
+@dataclass(frozen=True)
+class Route:
+    """The chosen procedure, who chose it, and the reasons."""
+
+    route: str                       # "classical" | "unequal" | "resample" | "fdr"
+    procedure: str
+    chosen_by: str                   # "policy" | "user"
+    reasons: tuple[str, ...]
+    alternatives: tuple[Alternative, ...] = ()
+    against: tuple[str, ...] = ()    # checks that argue against a user's choice
+    warnings: tuple[str, ...] = ()
+    calibration: dict | None = field(default=None)
+    crosscheck: str | None = None    # the independent second procedure
+
+    def to_dict(self) -> dict:
+        return {"route": self.route, "procedure": self.procedure, "chosen_by": self.chosen_by,
+                "reasons": list(self.reasons),
+                "alternatives": [{"procedure": a.procedure, "why": a.why}
+                                 for a in self.alternatives],
+                "against": list(self.against), "warnings": list(self.warnings),
+                "calibration": self.calibration, "crosscheck": self.crosscheck}
+
+
+def shape_poor(findings: Findings) -> list[str]:
+    """Return the sentences of the shape checks that send data to resampling."""
+    out = []
+    for name in ("normality", "skewness", "kurtosis", "outliers"):
+        c = findings.get(name)
+        if c.verdict == "violated":
+            out.append(c.sentence)
+    return out
+
+
+def spread_unequal(findings: Findings) -> list[str]:
+    """Return the sentences of the spread checks that rule out a pooled variance."""
+    return [findings.get(n).sentence for n in ("brown-forsythe", "sd-ratio",
+                                                "size-spread-pairing")
+            if findings.get(n).verdict == "violated"]
+
+
+def _contrast_classical(layout: Layout, family: Family, alpha: float) -> tuple[str, str]:
+    """Šidák or Scheffé for a contrast family, whichever gives shorter intervals."""
+    m, k = family.m, layout.k
+    df = layout.stats.df_error
+    sidak = stats.t.ppf(1 - (1 - (1 - alpha) ** (1 / m)) / 2, df)
+    scheffe = np.sqrt((k - 1) * stats.f.ppf(1 - alpha, k - 1, df))
+    if sidak <= scheffe:
+        return "sidak", (f"For {m} contrast{'s' if m > 1 else ''} fixed in advance, Šidák's "
+                         f"multiplier ({sidak:.3f}) is smaller than Scheffé's ({scheffe:.3f}); "
+                         f"use Scheffé if the contrasts were chosen after seeing the data.")
+    return "scheffe", (f"Scheffé's multiplier ({scheffe:.3f}) is smaller than Šidák's "
+                       f"({sidak:.3f}) for {m} contrasts, and it also covers contrasts "
+                       f"chosen after seeing the data.")
+
+
+def crosscheck_procedure(procedure: str, family: Family) -> str:
+    """Return the independent second procedure for ``procedure`` (DESIGN.md):
+    classical -> permutation; unequal-variance -> bootstrap; resampling -> its
+    closed-form counterpart."""
+    route = CATALOGUE[procedure].route
+    if route in ("classical", "fdr"):
+        return "permutation-maxt"
+    if route == "unequal":
+        return "bootstrap-maxt"
+    if procedure.startswith("permutation"):
+        return {"all-pairs": "tukey-kramer", "vs-reference": "dunnett"}.get(family.kind, "scheffe")
+    return {"all-pairs": "dunnett-t3", "vs-reference": "welch-dunnett"}.get(family.kind,
+                                                                             "dunnett-t3")
+
+
+def _unequal_all_pairs(layout, policy, alpha, seed):
+    """Games–Howell or Dunnett's T3 for all pairs under unequal spreads."""
+    n_min = int(layout.stats.n.min())
+    if n_min >= policy.games_howell_min_n:
+        return "games-howell", [
+            f"Every group has at least {policy.games_howell_min_n} observations, where "
+            f"Games-Howell holds its level closely and is less conservative than "
+            f"Dunnett's T3."], None, [Alternative(
+                "dunnett-t3", "more conservative than Games-Howell at these group sizes")]
+    if not policy.calibrate_candidates:
+        return "dunnett-t3", [
+            f"The smallest group has {n_min} observations; Games-Howell is mildly liberal "
+            f"with small groups, so Dunnett's T3 is used."], None, [Alternative(
+                "games-howell", "mildly liberal with small groups")]
+    from .calibrate import quick_fwer
+    st = layout.stats
+    cal = {name: quick_fwer(name, st.n, st.sd, alpha=alpha,
+                            replicates=policy.calibration_replicates, seed=seed)
+           for name in ("games-howell", "dunnett-t3")}
+    gh = cal["games-howell"]
+    limit = alpha + 2 * gh["se"]
+    record = {"method": "normal errors at the observed sizes and SDs, complete null",
+              "replicates": policy.calibration_replicates, "limit": limit,
+              "estimates": cal}
+    if gh["fwer"] <= limit:
+        return "games-howell", [
+            f"The smallest group has {n_min} observations, but a calibration at the observed "
+            f"sizes and SDs puts Games-Howell's familywise error at {gh['fwer']:.3f} "
+            f"(SE {gh['se']:.3f}), within alpha + 2 SE = {limit:.3f}."], record, [Alternative(
+                "dunnett-t3", f"more conservative (estimated familywise error "
+                              f"{cal['dunnett-t3']['fwer']:.3f})")]
+    return "dunnett-t3", [
+        f"The smallest group has {n_min} observations; a calibration at the observed sizes "
+        f"and SDs puts Games-Howell's familywise error at {gh['fwer']:.3f} (SE {gh['se']:.3f}), "
+        f"above alpha + 2 SE = {limit:.3f}, and Dunnett's T3 at "
+        f"{cal['dunnett-t3']['fwer']:.3f}."], record, [Alternative(
+            "games-howell", f"liberal at this design (estimated familywise error "
+                            f"{gh['fwer']:.3f})")]
+
+
+def choose(findings: Findings, family: Family, layout: Layout, policy: Policy | None = None,
+           procedure: str = "auto", alpha: float = 0.05, seed: int | None = 0) -> Route:
+    """Choose the procedure for ``family`` from the checks, or record a user's choice."""
+    policy = policy or Policy()
+    poor, unequal = shape_poor(findings), spread_unequal(findings)
+    warnings = []
+    small = findings.get("small-groups")
+    if small.verdict != "ok":
+        warnings.append(small.sentence)
+    if procedure != "auto":
+        info = check_procedure(procedure)
+        against = []
+        if info.route == "classical" and unequal:
+            against += [f"pooled variance assumed, but: {s}" for s in unequal]
+        if info.route in ("classical", "unequal") and poor:
+            against += [f"normal errors assumed, but: {s}" for s in poor]
+        if procedure.startswith("permutation") and unequal and small.verdict != "ok":
+            against.append("permutation max-T is liberal when small groups carry large "
+                           "spreads")
+        if procedure == "games-howell" and layout.stats.n.min() < policy.games_howell_min_n:
+            against.append("Games-Howell is mildly liberal with small groups")
+        if procedure == "lsd" and layout.k > 3:
+            against.append(f"Fisher's LSD controls the familywise error rate only for three "
+                           f"groups; here there are {layout.k}")
+        if procedure == "bh":
+            against.append("Benjamini-Hochberg controls the false discovery rate, not the "
+                           "familywise error rate")
+        return Route(info.route, procedure, "user", ("Chosen by the user.",), (),
+                     tuple(against), tuple(warnings), None,
+                     crosscheck_procedure(procedure, family))
+    reasons, alternatives, calibration = [], [], None
+    if poor:
+        route = "resample"
+        reasons.append("The residuals are far from normal. " + " ".join(poor))
+        if unequal:
+            proc = "bootstrap-maxt"
+            reasons.append("The spreads also differ. " + " ".join(unequal) + " So the "
+                           "bootstrap max-t with Welch statistics and within-group resampling "
+                           "is used.")
+            alternatives.append(Alternative("permutation-maxt",
+                                            "liberal when spreads differ, most of all with "
+                                            "small groups"))
+        else:
+            proc = "permutation-maxt"
+            reasons.append("The spreads agree, so a permutation max-T with Welch statistics "
+                           "is used; it is exact under exchangeability.")
+            alternatives.append(Alternative("bootstrap-maxt",
+                                            "conservative with small groups; not needed when "
+                                            "spreads agree"))
+        alternatives.append(Alternative(proc.replace("maxt", "stepdown"),
+                                        "more powerful, but its decisions are not dual to "
+                                        "simultaneous intervals"))
+        if family.is_pairwise:
+            alternatives.append(Alternative("yuen-holm", "trimmed means answer a different "
+                                            "question (a trimmed mean, not the mean)"))
+    elif unequal:
+        route = "unequal"
+        reasons.append("The residuals look close enough to normal, but the spreads differ. "
+                       + " ".join(unequal))
+        if family.kind == "all-pairs":
+            proc, why, calibration, alts = _unequal_all_pairs(layout, policy, alpha, seed)
+            reasons += why
+            alternatives += alts
+        elif family.kind == "vs-reference":
+            proc = "welch-dunnett"
+            reasons.append("Each group is compared with the reference by Welch t with the "
+                           "correlations the shared reference implies.")
+        else:
+            proc = "dunnett-t3"
+            reasons.append("Dunnett's T3 covers any set of contrasts at each contrast's "
+                           "Welch df.")
+        alternatives.append(Alternative("tukey-kramer" if family.kind != "vs-reference"
+                                        else "dunnett", "assumes one common variance"))
+    else:
+        route = "classical"
+        reasons.append("The residuals look close enough to normal and the spreads agree, so "
+                       "procedures with a pooled variance are exact and the most powerful.")
+        if family.kind == "all-pairs":
+            proc = "tukey-kramer"
+            alternatives += [Alternative("scheffe", "wider intervals for pairwise families"),
+                             Alternative("bonferroni", "more conservative than Tukey-Kramer")]
+        elif family.kind == "vs-reference":
+            proc = "dunnett"
+            alternatives.append(Alternative("bonferroni", "more conservative than Dunnett"))
+        else:
+            proc, why = _contrast_classical(layout, family, alpha)
+            reasons.append(why)
+            alternatives.append(Alternative("scheffe" if proc == "sidak" else "sidak",
+                                            "longer intervals for this family"))
+    if small.verdict != "ok" and route == "classical":
+        reasons.append("Some groups are small; the pooled procedures remain exact under "
+                       "normal errors, but the checks have little power there.")
+    return Route(route, proc, "policy", tuple(reasons), tuple(alternatives), (),
+                 tuple(warnings), calibration, crosscheck_procedure(proc, family))

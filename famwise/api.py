@@ -1,0 +1,244 @@
+"""The Python API: the one place that wires the stages together.
+
+``compare`` runs intake -> checks -> route -> procedure -> cross-check ->
+decision record; ``inspect`` runs intake and the checks alone.  The command
+line and batch sit above this module.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import shlex
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from .diagnostics import Findings, Policy, load_policy, run_checks
+from .diagnostics.route import Route, choose
+from .errors import FamwiseInputError, SmallGroupWarning
+from .families import Family, build_family
+from .intake import Intake, read
+from .layout import Layout
+from .ledger import Ledger
+from .margin import check_margin, classify
+from .procedures import CATALOGUE, check_procedure, run_procedure
+from .results import Comparison, DecisionRecord, environment
+from .summary import group_summary
+from .validate import check_alpha, check_alternative
+
+__all__ = ["compare", "inspect", "Inspection", "load_data"]
+
+_BACKENDS = ("threads", "processes", "dask")
+
+
+@dataclass(frozen=True)
+class Inspection:
+    """What :func:`inspect` returns: the data's account and the checks."""
+
+    layout: Layout
+    ledger: Ledger
+    groups: pd.DataFrame
+    findings: Findings
+
+
+def _sha256(path) -> str | None:
+    try:
+        h = hashlib.sha256()
+        with open(path, "rb") as fh:
+            for block in iter(lambda: fh.read(1 << 20), b""):
+                h.update(block)
+        return h.hexdigest()
+    except OSError:
+        return None
+
+
+def load_data(data, response=None, group=None, **read_options) -> Intake:
+    """Return an :class:`Intake` from a path, DataFrame, Intake or Layout."""
+    if isinstance(data, Intake):
+        return data
+    if isinstance(data, Layout):
+        ledger = Ledger(data.source, "row", data.n_total, data.n_total, (),
+                        ("data given as a Layout",))
+        return Intake(data, ledger)
+    return read(data, response, group, **read_options)
+
+
+def _policy(policy) -> Policy:
+    if policy is None:
+        return Policy()
+    if isinstance(policy, Policy):
+        return policy
+    if isinstance(policy, dict):
+        return Policy().replace(**policy)
+    return load_policy(policy)
+
+
+def _seed(seed):
+    if seed is None:
+        return int(np.random.SeedSequence().entropy % (2 ** 63))
+    if isinstance(seed, (bool, np.bool_)) or not isinstance(seed, (int, np.integer)) or seed < 0:
+        raise FamwiseInputError(f"seed must be a non-negative integer or None; got {seed!r}")
+    return int(seed)
+
+
+def inspect(data, response=None, group=None, *, policy=None, **read_options) -> Inspection:
+    """Read ``data``, account for every row, summarise the groups and run the checks."""
+    intake = load_data(data, response, group, **read_options)
+    pol = _policy(policy)
+    return Inspection(intake.layout, intake.ledger, group_summary(intake.layout),
+                      run_checks(intake.layout, pol))
+
+
+def compare(data, response=None, group=None, *, family="all-pairs", reference=None,
+            contrasts=None, procedure="auto", alpha=0.05, alternative="two-sided",
+            margin=None, resamples=9999, seed=None, n_jobs=1, backend="threads",
+            scheduler=None, policy=None, crosscheck=True, progress=None,
+            command=None, **read_options) -> Comparison:
+    """Compare groups: check the data, choose a procedure, run it and cross-check it.
+
+    Parameters
+    ----------
+    data : path-like, pandas.DataFrame, Intake or Layout
+        The observations (see :func:`famwise.intake.read` for files).
+    response, group : str
+        Long layout: the value column and the group column.
+    family : {"all-pairs", "vs-reference", "contrasts"}, default="all-pairs"
+    reference : str, optional
+        The reference (control) group for ``family="vs-reference"``.
+    contrasts : str, list or dict, optional
+        The contrasts for ``family="contrasts"`` (see :mod:`famwise.families`).
+    procedure : str, default="auto"
+        ``"auto"`` lets the policy choose; or a procedure identifier
+        (``famwise procedures`` lists them).
+    alpha : float, default=0.05
+        Familywise error rate (false discovery rate for ``bh``).
+    alternative : {"two-sided", "greater", "less"}, default="two-sided"
+        One-sided tests are offered for the reference family.
+    margin : float, optional
+        The smallest difference that matters; adds the ``practical`` column.
+    resamples : int or "auto", default=9999
+        Resamples B for resampling procedures; ``"auto"`` grows B until no
+        adjusted p-value is unsettled at alpha.
+    seed : int, optional
+        Seed of the resampling (drawn and recorded when not given).
+    n_jobs : int, default=1
+        Parallel jobs (joblib meaning); results do not depend on it.
+    backend : {"threads", "processes", "dask"}, default="threads"
+    scheduler : str or dask.distributed.Client, optional
+        A dask scheduler for ``backend="dask"``.
+    policy : Policy, dict or path of a TOML file, optional
+        Routing thresholds (see :class:`famwise.diagnostics.Policy`).
+    crosscheck : bool, default=True
+        Run the independent second route.
+    **read_options
+        Passed to :func:`famwise.intake.read` (wide, columns, sheet, decimal,
+        encoding, order, merge_spellings, delimiter).
+
+    Returns
+    -------
+    Comparison
+        ``.groups``, ``.comparisons``, ``.decision``, ``.crosscheck``,
+        ``.ledger``, ``.summary()``, ``.save(dir)``, ``.to_html(path)``.
+    """
+    alpha = check_alpha(alpha)
+    alternative = check_alternative(alternative)
+    margin = check_margin(margin)
+    if procedure != "auto":
+        check_procedure(procedure)
+    if backend not in _BACKENDS:
+        raise FamwiseInputError(f"backend must be one of {', '.join(_BACKENDS)}; got {backend!r}")
+    if alternative != "two-sided" and family != "vs-reference":
+        raise FamwiseInputError(
+            f"alternative={alternative!r} is offered for family 'vs-reference' only; "
+            f"use a two-sided test for {family!r}")
+    pol = _policy(policy)
+    seed = _seed(seed)
+    intake = load_data(data, response, group, **read_options)
+    layout, ledger = intake.layout, intake.ledger
+    fam = build_family(layout.labels, family, reference, contrasts)
+    findings = run_checks(layout, pol)
+    route = choose(findings, fam, layout, pol, procedure, alpha, seed=seed)
+    for w in route.warnings:
+        warnings.warn(SmallGroupWarning(w), stacklevel=2)
+    resampling_options = dict(resamples=resamples, seed=seed, n_jobs=n_jobs, backend=backend,
+                              scheduler=scheduler, progress=progress)
+    table = _run(route.procedure, layout, fam, alpha, alternative, resampling_options)
+    check = None
+    if crosscheck and route.crosscheck:
+        from .crosscheck import crosscheck as run_crosscheck
+        cc_resampling = dict(resampling_options)
+        if cc_resampling["resamples"] == "auto":
+            cc_resampling["resamples"] = 9999
+        statistic = "pooled" if CATALOGUE[route.procedure].route == "classical" else None
+        check = run_crosscheck(table, route.crosscheck, layout, fam, alpha=alpha,
+                               alternative=alternative, resampling=cc_resampling,
+                               statistic=statistic)
+    if margin is not None:
+        table = table.assign(practical=classify(table["ci_lower"], table["ci_upper"], margin))
+    groups = group_summary(layout)
+    if fam.kind == "all-pairs":
+        from .letters import compact_letters
+        groups = groups.assign(letters=compact_letters(groups["mean"].to_numpy(), table,
+                                                       list(layout.labels)))
+    record = _record(intake, data, fam, alpha, margin, findings, pol, route, check, table,
+                     command, response, group, seed)
+    return Comparison(groups=groups, comparisons=table, decision=record, crosscheck=check,
+                      ledger=ledger, findings=findings, layout=layout, family=fam)
+
+
+def _run(name, layout, fam, alpha, alternative, resampling_options) -> pd.DataFrame:
+    info = CATALOGUE[name]
+    options = {}
+    if info.route == "resample":
+        options.update(resampling_options)
+    if alternative != "two-sided":
+        options["alternative"] = alternative
+    return run_procedure(name, layout, fam, alpha=alpha, **options)
+
+
+def _record(intake, data, fam: Family, alpha, margin, findings, pol, route: Route, check,
+            table, command, response, group, seed) -> DecisionRecord:
+    led = intake.ledger
+    is_file = isinstance(data, (str, os.PathLike))
+    resampling = table.attrs.get("resampling")
+    if resampling is not None:
+        resampling = dict(resampling, max_mc_error=float(np.nanmax(table["mc_error"])),
+                          unsettled=[c for c, u in zip(table["comparison"], table["unsettled"])
+                                     if u])
+    if command is None:
+        command = _reproduce(data, response, group, fam, alpha, route, resampling, seed)
+    return DecisionRecord(
+        input={"source": led.source, "sha256": _sha256(data) if is_file else None,
+               "response": intake.layout.response, "group": intake.layout.group,
+               "layout": "wide" if led.unit == "cell" else "long",
+               "ledger": led.to_dict()},
+        family={"kind": fam.kind, "m": fam.m,
+                "reference": fam.labels[fam.reference] if fam.reference is not None else None,
+                "comparisons": list(fam.names)},
+        alpha=alpha, margin=margin, checks=findings.to_records(), policy=pol.to_dict(),
+        route=route.to_dict(), crosscheck=check.to_dict() if check is not None else None,
+        resampling=resampling, environment=environment(), command=command)
+
+
+def _reproduce(data, response, group, fam, alpha, route, resampling, seed) -> str:
+    source = os.fspath(data) if isinstance(data, (str, os.PathLike)) else "<DataFrame>"
+    parts = ["famwise", "compare", source]
+    if response:
+        parts += ["--response", str(response)]
+    if group:
+        parts += ["--group", str(group)]
+    parts += ["--family", fam.kind]
+    if fam.reference is not None:
+        parts += ["--reference", fam.labels[fam.reference]]
+    if fam.kind == "contrasts":
+        parts += ["--contrasts", "; ".join(fam.names)]
+    parts += ["--alpha", f"{alpha:g}"]
+    if route.chosen_by == "user":
+        parts += ["--procedure", route.procedure]
+    if resampling is not None:
+        parts += ["--resamples", str(resampling["resamples"])]
+    parts += ["--seed", str(seed)]
+    return shlex.join(parts)

@@ -1,0 +1,74 @@
+"""The text summary for the terminal: groups, comparisons, the route, a caution.
+
+Fits the given width (100 columns by default): long labels are clipped with
+an ellipsis in the tables and the prose is wrapped.
+"""
+
+from __future__ import annotations
+
+import textwrap
+
+import numpy as np
+import pandas as pd
+
+from ..textformat import format_number, frame_text
+
+__all__ = ["summary_text", "CAUTION"]
+
+CAUTION = ("Caution: significance is not importance, field data do not prove causes, and "
+           "regulated or safety decisions need the applicable rules and a qualified "
+           "statistician's review.")
+
+
+def _interval(lo, hi) -> str:
+    return f"[{format_number(lo)}, {format_number(hi)}]"
+
+
+def summary_text(result, width: int = 100) -> str:
+    """Return the plain-text summary of a :class:`~famwise.results.Comparison`."""
+    rec = result.decision
+    lay = result.layout
+    led = rec.input["ledger"]
+    wrap = lambda s: textwrap.fill(s, width=width, subsequent_indent="  ")  # noqa: E731
+    out = [wrap(f"famwise: {lay.response} by {lay.group}: {lay.k} groups, {led['used']} of "
+                f"{led['read']} {led['unit']}s used ({led['dropped']} set aside; see the "
+                f"ledger)."),
+           wrap(f"Procedure: {rec.route['procedure']} ({rec.route['route']} route, chosen by "
+                f"the {rec.route['chosen_by']}); familywise alpha {rec.alpha:g}."), ""]
+    groups = result.groups.sort_values("mean", ascending=False)
+    cols = ["group", "n", "mean", "sd"] + (["letters"] if "letters" in groups else [])
+    out.append("Groups, largest mean first"
+               + (" (groups sharing a letter were not declared different)"
+                  if "letters" in groups else ""))
+    out.append(frame_text(groups[cols].reset_index(drop=True)))
+    out.append("")
+    t = result.comparisons
+    level = int(round(100 * (1 - rec.alpha)))
+    shown = pd.DataFrame({
+        "comparison": t["comparison"],
+        "difference": t["difference"],
+        f"{level}% interval": [_interval(a, b) for a, b in zip(t["ci_lower"], t["ci_upper"])],
+        "p adjusted": t["p_adjusted"],
+        "verdict": np.where(t["reject"], "differ", "not shown to differ"),
+    })
+    if "practical" in t:
+        shown["practical"] = t["practical"]
+    out.append(f"Comparisons ({len(t)})")
+    out.append(frame_text(shown, max_label=min(40, max(12, width // 3))))
+    out.append("")
+    reasons = " ".join(rec.route["reasons"][:3])
+    if rec.route["chosen_by"] == "user" and rec.route["against"]:
+        reasons += " Checks that argue against it: " + "; ".join(rec.route["against"]) + "."
+    out.append(wrap("Why: " + reasons))
+    for w in rec.route["warnings"]:
+        out.append(wrap("Note: " + w))
+    if rec.crosscheck:
+        out.append(wrap("Cross-check: " + rec.crosscheck["sentence"]))
+    if rec.resampling:
+        r = rec.resampling
+        out.append(wrap(f"Resampling: B = {r['resamples']}, seed {r['seed']}, largest Monte "
+                        f"Carlo SE {r['max_mc_error']:.2g}"
+                        + (f", unsettled: {', '.join(r['unsettled'])}" if r["unsettled"]
+                           else "")))
+    out.append(wrap(CAUTION))
+    return "\n".join(out)
