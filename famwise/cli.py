@@ -19,6 +19,11 @@ __all__ = ["main", "build_parser"]
 
 EXAMPLES = """\
 examples:
+  famwise compare trial.csv --response nitrate_mg_kg --group mix --out results/
+  famwise compare trial.csv -r nitrate_mg_kg -g mix --family vs-reference \\
+      --reference "Bare fallow" --alternative less --margin 5
+  famwise compare trial.csv -r nitrate_mg_kg -g mix --family contrasts \\
+      --contrasts "legumes: (\`Rye + hairy vetch\` + \`Crimson clover\`)/2 - \`Cereal rye\`"
   famwise inspect trial.csv --response nitrate_mg_kg --group mix
   famwise inspect plots.xlsx --sheet 2025 --response yield --group variety
   famwise inspect wide.csv --wide --columns "Rye,Fallow,Clover"
@@ -51,6 +56,51 @@ def _add_data_options(p: argparse.ArgumentParser) -> None:
                    help="group order (default: order of first appearance)")
     p.add_argument("--merge-spellings", action="store_true",
                    help="merge labels that differ only by case or spacing")
+    p.add_argument("--exclude-rows", metavar="N,M,...",
+                   help="set aside these file rows (listed in the ledger as excluded)")
+
+
+def _add_compare_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--family", choices=("all-pairs", "vs-reference", "contrasts"),
+                   default="all-pairs", help="which comparisons (default: all-pairs)")
+    p.add_argument("--reference", metavar="LABEL", help="reference group for vs-reference")
+    p.add_argument("--contrasts", metavar="TEXT",
+                   help="contrasts, e.g. '(A + B)/2 - C; B - C' (labels with spaces in "
+                        "backticks)")
+    p.add_argument("--procedure", "-p", default="auto", metavar="NAME",
+                   help="procedure identifier, or auto (default); see famwise procedures")
+    p.add_argument("--alpha", type=float, default=0.05, help="familywise level (default 0.05)")
+    p.add_argument("--alternative", choices=("two-sided", "greater", "less"),
+                   default="two-sided", help="direction, for vs-reference (default two-sided)")
+    p.add_argument("--margin", type=float, metavar="D",
+                   help="smallest difference that matters, in the response's unit")
+    p.add_argument("--resamples", "-B", default="9999", metavar="B",
+                   help="resamples for resampling procedures, or auto (default 9999)")
+    p.add_argument("--seed", type=int, help="seed of the resampling (default: drawn, recorded)")
+    p.add_argument("--jobs", "-j", type=int, default=1, metavar="N",
+                   help="parallel jobs for resampling (-1: all cores)")
+    p.add_argument("--backend", choices=("threads", "processes", "dask"), default="threads")
+    p.add_argument("--scheduler", metavar="ADDRESS", help="dask scheduler address")
+    p.add_argument("--policy", metavar="FILE", help="routing thresholds from a TOML file")
+    p.add_argument("--no-crosscheck", action="store_true", help="skip the second route")
+    p.add_argument("--out", "-o", metavar="DIR", help="write the result files to DIR")
+    p.add_argument("--force", action="store_true", help="replace files already in DIR")
+    p.add_argument("--format", choices=("text", "json", "csv"), default="text",
+                   help="what to print: the summary, the decision record, or the table")
+    p.add_argument("--quiet", "-q", action="store_true", help="print nothing but warnings")
+
+
+def _resamples(text):
+    if text == "auto":
+        return "auto"
+    try:
+        value = int(text)
+    except ValueError:
+        raise FamwiseInputError(f"--resamples must be a whole number or auto; got {text!r}") \
+            from None
+    if value < 1:
+        raise FamwiseInputError(f"--resamples must be at least 1; got {value}")
+    return value
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -71,6 +121,21 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--quiet", "-q", action="store_true", help="print warnings only")
     p.set_defaults(run=_run_inspect)
 
+    p = sub.add_parser("compare", help="check the data, choose a procedure, compare the groups",
+                       description="Check the data, choose a simultaneous procedure (or use "
+                                   "the one you name), compare the groups, cross-check the "
+                                   "result and say why.", epilog=EXAMPLES,
+                       formatter_class=argparse.RawDescriptionHelpFormatter)
+    _add_data_options(p)
+    _add_compare_options(p)
+    p.set_defaults(run=_run_compare)
+
+    p = sub.add_parser("procedures", help="list the procedures and what each is for",
+                       description="List the procedure identifiers, their route, the "
+                                   "families they handle and when each fits.")
+    p.add_argument("--format", choices=("text", "json"), default="text")
+    p.set_defaults(run=_run_procedures)
+
     p = sub.add_parser("demo", help="run famwise on the invented cover-crop trial",
                        description="Run famwise on the invented cover-crop trial and "
                                    "write the results to a folder.")
@@ -85,13 +150,17 @@ def _split(text):
     return None if text is None else [s.strip() for s in text.split(",") if s.strip()]
 
 
-def _read(args):
-    from .intake import read
-    return read(args.file, args.response, args.group, wide=args.wide,
-                columns=_split(args.columns), sheet=args.sheet,
+def _read_options(args) -> dict:
+    return dict(wide=args.wide, columns=_split(args.columns), sheet=args.sheet,
                 delimiter=args.delimiter, decimal="," if args.decimal_comma else ".",
                 encoding=args.encoding, order=_split(args.order),
-                merge_spellings=args.merge_spellings)
+                merge_spellings=args.merge_spellings,
+                exclude_rows=_split(args.exclude_rows) or ())
+
+
+def _read(args):
+    from .intake import read
+    return read(args.file, args.response, args.group, **_read_options(args))
 
 
 def _inspection_text(intake, summary) -> str:
@@ -115,6 +184,58 @@ def _run_inspect(args) -> int:
         sys.stdout.write(safe_csv_text(summary))
     else:
         print(_inspection_text(intake, summary))
+    return 0
+
+
+def _compare(args, command):
+    from .api import compare
+    return compare(args.file, args.response, args.group, family=args.family, reference=args.reference,
+                   contrasts=args.contrasts, procedure=args.procedure, alpha=args.alpha,
+                   alternative=args.alternative, margin=args.margin,
+                   resamples=_resamples(args.resamples), seed=args.seed, n_jobs=args.jobs,
+                   backend=args.backend, scheduler=args.scheduler, policy=args.policy,
+                   crosscheck=not args.no_crosscheck, command=command,
+                   **_read_options(args))
+
+
+def _emit(result, args) -> None:
+    if args.out:
+        result.save(args.out, force=args.force)
+    if args.quiet:
+        return
+    if args.format == "json":
+        print(result.decision.to_json())
+    elif args.format == "csv":
+        from .output import safe_csv_text
+        sys.stdout.write(safe_csv_text(result.comparisons))
+    else:
+        print(result.summary())
+        if args.out:
+            print(f"\nwrote the report and tables to {args.out}")
+
+
+def _run_compare(args) -> int:
+    import shlex
+    command = shlex.join(["famwise", *sys.argv[1:]]) if sys.argv[1:] else None
+    if args.out:
+        from .output import prepare_folder
+        from .report.files import OUTPUT_FILES
+        prepare_folder(args.out, OUTPUT_FILES, force=args.force)   # fail before the work
+    _emit(_compare(args, command), args)
+    return 0
+
+
+def _run_procedures(args) -> int:
+    from .procedures import CATALOGUE
+    if args.format == "json":
+        print(json.dumps([{"name": p.name, "route": p.route, "families": list(p.families),
+                           "purpose": p.purpose} for p in CATALOGUE.values()], indent=2))
+        return 0
+    import textwrap
+    for p in CATALOGUE.values():
+        print(f"{p.name}  [{p.route}; {', '.join(p.families)}]")
+        print(textwrap.fill(p.purpose, width=96, initial_indent="    ",
+                            subsequent_indent="    "))
     return 0
 
 

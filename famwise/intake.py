@@ -323,7 +323,8 @@ def read(source, response: str | None = None, group: str | None = None, *,
          sheet: str | int | None = None, delimiter: str | None = None,
          decimal: str = ".", encoding: str | None = None,
          order: Sequence[str] | None = None,
-         merge_spellings: bool = False) -> Intake:
+         merge_spellings: bool = False,
+         exclude_rows: Sequence[int] = ()) -> Intake:
     """Read ``source`` and return the usable data and an account of every row.
 
     Parameters
@@ -350,6 +351,10 @@ def read(source, response: str | None = None, group: str | None = None, *,
     merge_spellings : bool, default=False
         Merge labels that differ only by case or inner spacing into their most
         frequent spelling.
+    exclude_rows : sequence of int, optional
+        Source row numbers (as the ledger counts them) to set aside, for
+        example after checking a flagged value against the field records.
+        Each is listed in the ledger as excluded by the user.
 
     Returns
     -------
@@ -368,14 +373,15 @@ def read(source, response: str | None = None, group: str | None = None, *,
     raw = _load(source, sheet=sheet, delimiter=delimiter, decimal=decimal,
                 encoding=encoding)
     src = raw.source
+    excluded = _excluded_rows(exclude_rows, raw)
     notes = list(raw.notes)
     if wide:
-        values, labels, rows, dropped, n_read = _wide(raw, columns, decimal)
+        values, labels, rows, dropped, n_read = _wide(raw, columns, decimal, excluded)
         unit = "cell"
         response_name, group_name = "value", "column"
     else:
         values, labels, rows, dropped, n_read, response_name, group_name = \
-            _long(raw, response, group, decimal)
+            _long(raw, response, group, decimal, excluded)
         unit = "row"
     # Spelling variants among the labels that are used.
     counts = Counter(labels)
@@ -433,7 +439,7 @@ def read(source, response: str | None = None, group: str | None = None, *,
     return Intake(layout, ledger)
 
 
-def _long(raw: _Raw, response, group, decimal):
+def _long(raw: _Raw, response, group, decimal, excluded):
     src = raw.source
     r = _find_column(raw.header, response, src, "response")
     g = _find_column(raw.header, group, src, "group")
@@ -451,7 +457,9 @@ def _long(raw: _Raw, response, group, decimal):
             f"(it holds {shown[:80]})")
     dropped, keep = [], np.zeros(len(values), dtype=bool)
     for i in range(len(values)):
-        if blank_row[i]:
+        if raw.rows[i] in excluded:
+            reason, col, text = "excluded", rname, texts[i]
+        elif blank_row[i]:
             reason, col, text = "blank-row", "", ""
         elif reasons[i]:
             reason, col, text = reasons[i], rname, texts[i]
@@ -465,7 +473,7 @@ def _long(raw: _Raw, response, group, decimal):
             len(values), rname, gname)
 
 
-def _wide(raw: _Raw, columns, decimal):
+def _wide(raw: _Raw, columns, decimal, excluded):
     src = raw.source
     header = raw.header
     if columns is None:
@@ -480,7 +488,10 @@ def _wide(raw: _Raw, columns, decimal):
     for j in use:
         v, reasons, texts = _parse_values(raw.body[j], decimal)
         for i in range(len(v)):
-            if reasons[i] == "missing-response" and texts[i] == "":
+            if raw.rows[i] in excluded:
+                dropped.append(Dropped(int(raw.rows[i]), header[j], texts[i], "excluded",
+                                       header[j]))
+            elif reasons[i] == "missing-response" and texts[i] == "":
                 dropped.append(Dropped(int(raw.rows[i]), header[j], "", "empty-cell", header[j]))
             elif reasons[i]:
                 dropped.append(Dropped(int(raw.rows[i]), header[j], texts[i], reasons[i],
@@ -494,6 +505,24 @@ def _wide(raw: _Raw, columns, decimal):
     dropped.sort(key=lambda d: (d.row, use.index(header.index(d.column))))
     return (np.array(values), labels, np.array(rows), dropped,
             len(use) * len(raw.body))
+
+
+def _excluded_rows(exclude_rows, raw: _Raw) -> set:
+    rows = set()
+    for r in exclude_rows or ():
+        try:
+            value = int(r)
+        except (TypeError, ValueError):
+            raise FamwiseInputError(f"row to exclude must be a whole number; got {r!r}") \
+                from None
+        if value != r and not isinstance(r, str):
+            raise FamwiseInputError(f"row to exclude must be a whole number; got {r!r}")
+        if value not in set(raw.rows.tolist()):
+            raise FamwiseInputError(
+                f"row {value} to exclude is not a data row of {raw.source!r} (data rows "
+                f"{raw.rows[0]} to {raw.rows[-1]})")
+        rows.add(value)
+    return rows
 
 
 def _validate(layout: Layout, ledger: Ledger) -> None:

@@ -22,6 +22,7 @@ __all__ = ["Dropped", "Ledger", "REASONS"]
 
 #: Reasons a value is set aside, in the order they are tested.
 REASONS = {
+    "excluded": "excluded by the user",
     "blank-row": "blank row",
     "missing-group": "missing group label",
     "missing-response": "missing response value",
