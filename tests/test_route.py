@@ -1,0 +1,142 @@
+"""Every branch of the routing policy on constructed data, with its reasons.
+
+These data are constructed to exercise the policy's branches (they are not
+reference values); the expected routes follow the policy documented in
+DESIGN.md and diagnostics/route.py.
+"""
+
+import numpy as np
+import pytest
+
+from famwise.diagnostics import Policy, run_checks
+from famwise.diagnostics.route import choose, crosscheck_procedure
+from famwise.families import all_pairs, contrasts, vs_reference
+from famwise.layout import Layout
+
+NO_CAL = Policy(calibrate_candidates=False)
+
+
+def layout(seed, sizes, sds, shape="normal", means=None):
+    rng = np.random.default_rng(seed)
+    means = means or [10.0] * len(sizes)
+    groups = []
+    for n, s, m in zip(sizes, sds, means):
+        if shape == "normal":
+            groups.append(rng.normal(m, s, n))
+        else:                                      # strongly right-skewed
+            groups.append(m + s * (rng.lognormal(0, 1.0, n) - np.exp(0.5)))
+    return Layout.from_groups(groups, [f"g{i}" for i in range(len(sizes))])
+
+
+def route_of(lay, family=None, policy=NO_CAL, **kw):
+    fam = family or all_pairs(lay.labels)
+    return choose(run_checks(lay, policy), fam, lay, policy, **kw)
+
+
+def test_classical_all_pairs():
+    lay = layout(1, [25] * 4, [1] * 4)
+    r = route_of(lay)
+    assert (r.route, r.procedure, r.chosen_by) == ("classical", "tukey-kramer", "policy")
+    assert "spreads agree" in r.reasons[0]
+    assert {a.procedure for a in r.alternatives} >= {"scheffe", "bonferroni"}
+    assert r.crosscheck == "permutation-maxt"
+
+
+def test_classical_vs_reference_and_contrasts():
+    lay = layout(2, [25] * 4, [1] * 4)
+    assert route_of(lay, vs_reference(lay.labels, "g0")).procedure == "dunnett"
+    few = contrasts(lay.labels, "(g1 + g2)/2 - g0")
+    r = route_of(lay, few)
+    assert r.procedure == "sidak" and "Šidák's multiplier" in " ".join(r.reasons)
+    many = contrasts(lay.labels, [f"g{i} - g{j}" for i in range(4) for j in range(4) if i != j]
+                     + ["(g0 + g1)/2 - (g2 + g3)/2", "(g0 + g2)/2 - (g1 + g3)/2",
+                        "(g0 + g3)/2 - (g1 + g2)/2", "g0 - (g1 + g2 + g3)/3"])
+    assert route_of(lay, many).procedure == "scheffe"
+
+
+def test_unequal_spread_with_large_groups_goes_to_games_howell():
+    lay = layout(3, [30, 30, 30, 30], [1, 1, 3, 5])
+    r = route_of(lay)
+    assert (r.route, r.procedure) == ("unequal", "games-howell")
+    assert "spreads differ" in r.reasons[0]
+    assert r.crosscheck == "bootstrap-maxt"
+    assert route_of(lay, vs_reference(lay.labels, "g0")).procedure == "welch-dunnett"
+    assert route_of(lay, contrasts(lay.labels, "(g1 + g2)/2 - g0")).procedure == "dunnett-t3"
+
+
+def test_unequal_spread_with_small_groups_prefers_t3_without_calibration():
+    lay = layout(4, [6, 8, 10, 20, 30], [3, 2, 1.5, 1, 1])
+    r = route_of(lay)
+    assert r.procedure == "dunnett-t3"
+    assert any(a.procedure == "games-howell" and "liberal" in a.why for a in r.alternatives)
+
+
+def test_poor_shape_with_equal_spread_goes_to_permutation():
+    lay = layout(5, [40, 40, 40], [1, 1, 1], shape="skewed")
+    findings = run_checks(lay, NO_CAL)
+    assert findings.get("brown-forsythe").verdict == "ok"
+    r = route_of(lay)
+    assert (r.route, r.procedure) == ("resample", "permutation-maxt")
+    assert r.crosscheck == "tukey-kramer"
+
+
+def test_poor_shape_with_unequal_spread_goes_to_bootstrap():
+    lay = layout(6, [40, 40, 40], [1, 3, 6], shape="skewed")
+    r = route_of(lay)
+    assert (r.route, r.procedure) == ("resample", "bootstrap-maxt")
+    assert any(a.procedure == "permutation-maxt" for a in r.alternatives)
+    assert r.crosscheck == "dunnett-t3"
+
+
+def test_gross_outlier_alone_sends_to_resampling():
+    rng = np.random.default_rng(7)
+    groups = [rng.normal(10, 1, 20) for _ in range(3)]
+    groups[1][3] = 30.0                            # a decimal slip: 3.0 typed as 30
+    lay = Layout.from_groups(groups)
+    r = route_of(lay)
+    assert r.route == "resample"
+    assert "far from" in " ".join(r.reasons)
+
+
+def test_small_groups_warn():
+    lay = layout(8, [4, 12, 12], [1, 1, 1])
+    r = route_of(lay)
+    assert r.warnings and "n = 4" in r.warnings[0]
+
+
+def test_user_choice_is_recorded_with_the_checks_against_it():
+    lay = layout(9, [6, 8, 10, 20, 30], [3, 2, 1.5, 1, 1])
+    r = route_of(lay, procedure="tukey-kramer")
+    assert r.chosen_by == "user" and r.procedure == "tukey-kramer"
+    assert any("pooled variance assumed" in a for a in r.against)
+    r = route_of(lay, procedure="games-howell")
+    assert any("mildly liberal" in a for a in r.against)
+    r = route_of(layout(10, [20] * 5, [1] * 5), procedure="lsd")
+    assert any("only for three groups" in a for a in r.against)
+    assert any("false discovery rate" in a
+               for a in route_of(layout(11, [20] * 3, [1] * 3), procedure="bh").against)
+
+
+def test_thresholds_are_the_policys():
+    # A tiny test level silences the Brown-Forsythe test, so the SD ratio decides.
+    lay = layout(12, [30, 30, 30, 30], [1, 1, 1.5, 2.6])
+    quiet = NO_CAL.replace(check_alpha=1e-12)
+    assert run_checks(lay, quiet).get("brown-forsythe").verdict == "ok"
+    assert route_of(lay, policy=quiet).route == "unequal"
+    assert route_of(lay, policy=quiet.replace(sd_ratio_limit=10.0)).route == "classical"
+
+
+def test_crosscheck_pairs():
+    fam = all_pairs(["a", "b", "c"])
+    assert crosscheck_procedure("scheffe", fam) == "permutation-maxt"
+    assert crosscheck_procedure("welch-holm", fam) == "bootstrap-maxt"
+    assert crosscheck_procedure("bootstrap-stepdown", fam) == "dunnett-t3"
+    ref = vs_reference(["a", "b", "c"], "a")
+    assert crosscheck_procedure("permutation-maxt", ref) == "dunnett"
+    assert crosscheck_procedure("bootstrap-maxt", ref) == "welch-dunnett"
+
+
+def test_route_serialises():
+    r = route_of(layout(13, [20] * 3, [1] * 3))
+    d = r.to_dict()
+    assert d["procedure"] == "tukey-kramer" and isinstance(d["alternatives"], list)
