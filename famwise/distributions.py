@@ -82,11 +82,14 @@ class _Table:
     def __init__(self, log_upper, log_lower, u_range, u_width, l_range, l_width,
                  lower_log, upper_tail, lower_tail):
         self.coef_u, u0, uw = _cheb_fit(log_upper, u_range, u_width)
-        lo_fun = (lambda x: log_lower(np.exp(x))) if lower_log else log_lower
-        self.coef_l, l0, lw = _cheb_fit(lo_fun, l_range, l_width)
+        if log_lower is None:                  # lower tail from 1 - upper
+            self.coef_l, l0, lw, mode = np.zeros((1, _CHEB_N)), 0.0, 1.0, 2.0
+        else:
+            lo_fun = (lambda x: log_lower(np.exp(x))) if lower_log else log_lower
+            self.coef_l, l0, lw = _cheb_fit(lo_fun, l_range, l_width)
+            mode = 1.0 if lower_log else 0.0
         self.meta = np.array([u0, uw, self.coef_u.shape[0], upper_tail,
-                              1.0 if lower_log else 0.0, l0, lw, self.coef_l.shape[0],
-                              lower_tail])
+                              mode, l0, lw, self.coef_l.shape[0], lower_tail])
 
 
 def _cheb_fit(fun, rng, width):
@@ -156,6 +159,10 @@ def _log_lower(cu, cl, meta, w):
     l0 = meta[5]
     lw = meta[6]
     l1 = l0 + lw * meta[7]
+    if meta[4] > 1.5:                      # no lower table
+        if w <= 0.0:
+            return -np.inf
+        return _log1mexp(_log_upper(cu, meta, w))
     if meta[4] > 0.5:                      # lower table on log w
         if w <= 0.0:
             return -np.inf
@@ -435,6 +442,47 @@ def _smm_table(m):
                   0.5, True, 0.5, float(m))
 
 
+@njit(cache=True, nogil=True)
+def _log_ndtr_scalar(x):
+    if x > -5.0:
+        return math.log1p(-0.5 * math.erfc(x / 1.4142135623730951))
+    if x > -30.0:
+        return math.log(0.5 * math.erfc(-x / 1.4142135623730951))
+    x2 = x * x                                   # asymptotic (Mills ratio)
+    return -0.5 * x2 - math.log(-x) - 0.9189385332046728 + math.log1p(-1.0 / x2 + 3.0 / (x2 * x2))
+
+
+@njit(cache=True, nogil=True)
+def _dunnett_logp(w, u, lam, sig, mult, two_sided):
+    """S[a, b] = sum_i mult_i log P_i(u_b, w_a): log P(all |Z_i| < w | u) (or Z_i < w)."""
+    out = np.zeros((w.shape[0], u.shape[0]))
+    for a in range(w.shape[0]):
+        wa = w[a]
+        for b in range(u.shape[0]):
+            acc = 0.0
+            for i in range(lam.shape[0]):
+                c = lam[i] * u[b]
+                hi = (wa - c) / sig[i]
+                if not two_sided:
+                    acc += mult[i] * _log_ndtr_scalar(hi)
+                    continue
+                lo = (-wa - c) / sig[i]
+                qout = 0.5 * math.erfc(-lo / 1.4142135623730951) + 0.5 * math.erfc(hi / 1.4142135623730951)
+                if qout < 0.5:
+                    acc += mult[i] * math.log1p(-qout)
+                else:
+                    if lo + hi <= 0.0:
+                        mass = 0.5 * (math.erfc(-hi / 1.4142135623730951) - math.erfc(-lo / 1.4142135623730951))
+                    else:
+                        mass = 0.5 * (math.erfc(lo / 1.4142135623730951) - math.erfc(hi / 1.4142135623730951))
+                    if mass <= 0.0:
+                        acc = -np.inf
+                        break
+                    acc += mult[i] * math.log(mass)
+            out[a, b] = acc
+    return out
+
+
 @functools.lru_cache(maxsize=32)
 def _dunnett_table(lam_key, mult_key, two_sided):
     """Tables of max_i |Z_i| (or max_i Z_i), corr(Z_i, Z_j) = lam_i lam_j.
@@ -442,30 +490,23 @@ def _dunnett_table(lam_key, mult_key, two_sided):
     Conditional on the common factor u ~ N(0,1) the Z_i are independent,
     Z_i = lam_i u + sqrt(1 - lam_i^2) e_i (Dunnett 1955, section 2), so
     ``P(all |Z_i| < w) = int phi(u) prod_i [Phi((w - lam_i u)/sig_i)
-    - Phi((-w - lam_i u)/sig_i)] du``.
+    - Phi((-w - lam_i u)/sig_i)] du``.  The two-sided integrand is even in
+    ``u``, so only ``u >= 0`` is integrated.
     """
     lam = np.array(lam_key, float)
     mult = np.array(mult_key, float)
     sig = np.sqrt(1.0 - lam * lam)
     ratio = np.min(sig / np.maximum(lam, 1e-300))
     hu = float(np.clip(ratio, 0.2, 1.0))
-    u, wu = _panel_rule(-10.0, 10.0, hu)
+    if two_sided:
+        u, wu = _panel_rule(0.0, 9.0, hu)
+        wu = 2.0 * wu
+    else:
+        u, wu = _panel_rule(-9.0, 9.0, hu)
     logwu = np.log(wu) - 0.5 * u * u - _LOG_SQRT_2PI
-    c = lam[None, :] * u[:, None]                       # (u, lam)
 
     def log_p(w):
-        """sum_i mult_i log P_i, shape (w, u)."""
-        w = np.asarray(w, float)[:, None, None]
-        hi = (w - c[None]) / sig
-        if not two_sided:
-            lp = special.log_ndtr(hi)
-        else:
-            lo = (-w - c[None]) / sig
-            qout = special.ndtr(lo) + special.ndtr(-hi)
-            with np.errstate(divide="ignore"):
-                lp = np.where(qout < 0.5, np.log1p(-np.minimum(qout, 1.0)),
-                              np.log(_interval_mass(lo, hi)))
-        return lp @ mult
+        return _dunnett_logp(np.ascontiguousarray(w, dtype=float), u, lam, sig, mult, two_sided)
 
     def log_upper(w):
         s = log_p(w)
@@ -478,8 +519,8 @@ def _dunnett_table(lam_key, mult_key, two_sided):
 
     top = 12.0 + 0.5 * math.log(mult.sum())
     if two_sided:
-        return _Table(log_upper, log_lower, (0.0, top), 1.0,
-                      (math.log(1e-4), math.log(top)), 1.0, True, 0.5, float(mult.sum()))
+        # the lower tail (small t) is left to 1 - upper: absolute accuracy suffices there
+        return _Table(log_upper, None, (0.0, top), 1.0, None, None, True, 0.5, 0.0)
     return _Table(log_upper, log_lower, (-top, top), 1.0, (-top, top), 1.0, False, 0.5, 0.5)
 
 
@@ -819,7 +860,8 @@ def _dunnett_eval(t, lam, df, alternative):
         raise FamwiseInputError(f"`df` must be a scalar for Dunnett's distribution; got shape {df.shape}")
     df = _check_df(df)
     table, two_sided = _dunnett_prep(lam, alternative)
-    tt, dd = np.broadcast_arrays(t, df)
+    tt = np.array(t, dtype=float)
+    dd = np.full(tt.shape, float(df))
     sf, cdf = _evaluate(table, tt, dd)
     if two_sided:
         low = tt.ravel() <= 0.0
