@@ -379,7 +379,8 @@ _REFERENCES = """
     References
     ----------
     .. [1] Westfall, P. H. and Young, S. S. (1993). *Resampling-Based Multiple
-       Testing*. Wiley. (Algorithms 2.5 and 2.8, single-step and step-down.)
+       Testing*. Wiley. (Algorithms 2.5 and 2.8, single-step and step-down;
+       algorithm numbers from memory.)
     .. [2] Phipson, B. and Smyth, G. K. (2010). Permutation p-values should
        never be zero. *Stat. Appl. Genet. Mol. Biol.* 9(1):39.
        doi:10.2202/1544-6115.1585
