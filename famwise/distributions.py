@@ -162,7 +162,7 @@ def _log_lower(cu, cl, meta, w):
     if meta[4] > 1.5:                      # no lower table
         if w <= 0.0:
             return -np.inf
-        return _log1mexp(_log_upper(cu, meta, w))
+        return _log1mexp(min(_log_upper(cu, meta, w), -1e-300))
     if meta[4] > 0.5:                      # lower table on log w
         if w <= 0.0:
             return -np.inf
@@ -325,7 +325,7 @@ def _outer(cu, cl, meta, q, nu, gx, gw, sf, cdf, ratio=2.0, hmul=1.0, m=24):
             continue
         # choose the tail: the conditional probability at s = 1 is a good proxy
         lu = _log_upper(cu, meta, qi)
-        upper = lu < _LOG_HALF
+        upper = lu < _LOG_HALF or meta[4] > 1.5     # no lower table: always the upper tail
         if nui == np.inf:
             lp = lu if upper else _log_lower(cu, cl, meta, qi)
         else:
@@ -334,7 +334,7 @@ def _outer(cu, cl, meta, q, nu, gx, gw, sf, cdf, ratio=2.0, hmul=1.0, m=24):
                 c0 = _chi_const(nui)
                 nu_prev = nui
             lp = c0 + _outer_one(cu, cl, meta, qi, nui, upper, gx, gw, tl, tr, psis, ratio, hmul)
-        p = math.exp(lp)
+        p = min(math.exp(lp), 1.0)
         if upper:
             sf[i] = p
             cdf[i] = 1.0 - p
