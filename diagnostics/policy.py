@@ -50,7 +50,7 @@ class Policy:
     small_group: int = 5
     games_howell_min_n: int = 10
     calibrate_candidates: bool = True
-    calibration_replicates: int = 4000
+    calibration_replicates: int = 3000
 
     def replace(self, **changes) -> "Policy":
         """Return a copy with ``changes`` applied (names checked)."""

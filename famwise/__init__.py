@@ -7,6 +7,7 @@ procedure, cross-checks the result and records why the procedure was chosen.
 
 from importlib.metadata import PackageNotFoundError, version as _version
 
+from .api import calibrate, compare, inspect
 from .errors import FamwiseError, FamwiseInputError, FamwiseWarning
 from .layout import Layout
 
@@ -15,5 +16,5 @@ try:
 except PackageNotFoundError:  # running from a source tree without install
     __version__ = "0.0.0+unknown"
 
-__all__ = ["__version__", "FamwiseError", "FamwiseInputError", "FamwiseWarning",
-           "Layout"]
+__all__ = ["__version__", "compare", "inspect", "calibrate", "FamwiseError",
+           "FamwiseInputError", "FamwiseWarning", "Layout"]

@@ -29,7 +29,7 @@ from .results import Comparison, DecisionRecord, environment
 from .summary import group_summary
 from .validate import check_alpha, check_alternative
 
-__all__ = ["compare", "inspect", "Inspection", "load_data"]
+__all__ = ["compare", "inspect", "calibrate", "Inspection", "load_data"]
 
 _BACKENDS = ("threads", "processes", "dask")
 
@@ -96,7 +96,7 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
             contrasts=None, procedure="auto", alpha=0.05, alternative="two-sided",
             margin=None, resamples=9999, seed=None, n_jobs=1, backend="threads",
             scheduler=None, policy=None, crosscheck=True, progress=None,
-            command=None, **read_options) -> Comparison:
+            calibrate=False, command=None, **read_options) -> Comparison:
     """Compare groups: check the data, choose a procedure, run it and cross-check it.
 
     Parameters
@@ -133,6 +133,10 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
         Routing thresholds (see :class:`famwise.diagnostics.Policy`).
     crosscheck : bool, default=True
         Run the independent second route.
+    calibrate : bool or int, default=False
+        Also estimate every candidate's familywise error, and the automatic
+        pipeline's, at the observed design (an int sets the replicates;
+        ``True`` means 2,000); see :func:`calibrate`.
     **read_options
         Passed to :func:`famwise.intake.read` (wide, columns, sheet, decimal,
         encoding, order, merge_spellings, delimiter).
@@ -183,10 +187,46 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
         from .letters import compact_letters
         groups = groups.assign(letters=compact_letters(groups["mean"].to_numpy(), table,
                                                        list(layout.labels)))
+    calibration = None
+    if calibrate:
+        from .diagnostics.calibrate import calibrate_layout
+        reps = 2000 if calibrate is True else int(calibrate)
+        calibration = calibrate_layout(layout, fam, alpha=alpha, replicates=reps, seed=seed,
+                                       policy=pol)
     record = _record(intake, data, fam, alpha, margin, findings, pol, route, check, table,
                      command, response, group, seed)
     return Comparison(groups=groups, comparisons=table, decision=record, crosscheck=check,
-                      ledger=ledger, findings=findings, layout=layout, family=fam)
+                      ledger=ledger, findings=findings, layout=layout, family=fam,
+                      calibration=calibration)
+
+
+def calibrate(data, response=None, group=None, *, family="all-pairs", reference=None,
+              contrasts=None, alpha=0.05, replicates=2000, shape="normal", seed=None,
+              procedures=None, pipeline=True, policy=None, **read_options):
+    """Estimate familywise error rates under the complete null at the observed design.
+
+    For every candidate procedure of the family (or those named in
+    ``procedures``) and for the whole automatic pipeline (checks and routing
+    included), at the observed group sizes and SDs, with normal errors or
+    (``shape="observed"``) errors resampled from the standardised residuals.
+    See :mod:`famwise.diagnostics.calibrate` for the methods.
+
+    Returns
+    -------
+    Calibration
+        ``.table`` (procedure, fwer, se, replicates, method, holds),
+        ``.independent`` (1 - (1 - alpha)^m), ``.routes`` (how often the
+        pipeline chose each procedure), ``.sentence()``, ``.to_dict()``.
+    """
+    from .diagnostics.calibrate import calibrate_layout
+    alpha = check_alpha(alpha)
+    if procedures is not None:
+        procedures = [check_procedure(p).name for p in procedures]
+    intake = load_data(data, response, group, **read_options)
+    fam = build_family(intake.layout.labels, family, reference, contrasts)
+    return calibrate_layout(intake.layout, fam, alpha=alpha, replicates=int(replicates),
+                            shape=shape, seed=_seed(seed), procedures=procedures,
+                            pipeline=pipeline, policy=_policy(policy))
 
 
 def _run(name, layout, fam, alpha, alternative, resampling_options) -> pd.DataFrame:

@@ -83,6 +83,9 @@ def _add_compare_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--scheduler", metavar="ADDRESS", help="dask scheduler address")
     p.add_argument("--policy", metavar="FILE", help="routing thresholds from a TOML file")
     p.add_argument("--no-crosscheck", action="store_true", help="skip the second route")
+    p.add_argument("--calibrate", nargs="?", type=int, const=2000, default=0, metavar="N",
+                   help="also estimate familywise error rates at this design (N replicates, "
+                        "default 2000)")
     p.add_argument("--out", "-o", metavar="DIR", help="write the result files to DIR")
     p.add_argument("--force", action="store_true", help="replace files already in DIR")
     p.add_argument("--format", choices=("text", "json", "csv"), default="text",
@@ -129,6 +132,24 @@ def build_parser() -> argparse.ArgumentParser:
     _add_data_options(p)
     _add_compare_options(p)
     p.set_defaults(run=_run_compare)
+
+    p = sub.add_parser("calibrate", help="estimate familywise error rates at your design",
+                       description="Estimate, under the complete null at the observed group "
+                                   "sizes and SDs, the familywise error rate of every "
+                                   "candidate procedure and of the automatic pipeline.")
+    _add_data_options(p)
+    p.add_argument("--family", choices=("all-pairs", "vs-reference", "contrasts"),
+                   default="all-pairs")
+    p.add_argument("--reference", metavar="LABEL")
+    p.add_argument("--contrasts", metavar="TEXT")
+    p.add_argument("--alpha", type=float, default=0.05)
+    p.add_argument("--replicates", type=int, default=2000, metavar="N")
+    p.add_argument("--shape", choices=("normal", "observed"), default="normal",
+                   help="errors: normal, or resampled from the observed residuals")
+    p.add_argument("--seed", type=int)
+    p.add_argument("--policy", metavar="FILE", help="routing thresholds from a TOML file")
+    p.add_argument("--format", choices=("text", "json", "csv"), default="text")
+    p.set_defaults(run=_run_calibrate)
 
     p = sub.add_parser("procedures", help="list the procedures and what each is for",
                        description="List the procedure identifiers, their route, the "
@@ -194,8 +215,8 @@ def _compare(args, command):
                    alternative=args.alternative, margin=args.margin,
                    resamples=_resamples(args.resamples), seed=args.seed, n_jobs=args.jobs,
                    backend=args.backend, scheduler=args.scheduler, policy=args.policy,
-                   crosscheck=not args.no_crosscheck, command=command,
-                   **_read_options(args))
+                   crosscheck=not args.no_crosscheck, calibrate=args.calibrate,
+                   command=command, **_read_options(args))
 
 
 def _emit(result, args) -> None:
@@ -222,6 +243,27 @@ def _run_compare(args) -> int:
         from .report.files import OUTPUT_FILES
         prepare_folder(args.out, OUTPUT_FILES, force=args.force)   # fail before the work
     _emit(_compare(args, command), args)
+    return 0
+
+
+def _run_calibrate(args) -> int:
+    from .api import calibrate
+    from .textformat import frame_text
+    result = calibrate(args.file, args.response, args.group, family=args.family,
+                       reference=args.reference, contrasts=args.contrasts, alpha=args.alpha,
+                       replicates=args.replicates, shape=args.shape, seed=args.seed,
+                       policy=args.policy, **_read_options(args))
+    if args.format == "json":
+        print(json.dumps(result.to_dict(), indent=2))
+    elif args.format == "csv":
+        from .output import safe_csv_text
+        sys.stdout.write(safe_csv_text(result.table))
+    else:
+        print(frame_text(result.table[["procedure", "fwer", "se", "replicates", "holds"]]))
+        print()
+        import textwrap
+        print(textwrap.fill(result.sentence(), width=100))
+        print("Pipeline choices: " + ", ".join(f"{p} {c}" for p, c in result.routes.items()))
     return 0
 
 
