@@ -1,0 +1,265 @@
+"""The report's figures, drawn with matplotlib and returned as inline SVG text.
+
+Three figures, each a plain function of plain data:
+
+:func:`residual_quantile_svg`
+    standardised within-group residuals against normal quantiles, with the
+    line y = x (the residuals are already on a unit scale);
+:func:`spread_level_svg`
+    each group's SD (and each observation's absolute residual) against the
+    group mean, to show spread that grows with the level;
+:func:`interval_svg`
+    one row per comparison: the estimate and its interval, the zero line, the
+    band ``(-margin, margin)`` when a margin is given, and the comparisons
+    declared different drawn apart from the others.
+
+No pyplot is used: each figure is a bare :class:`matplotlib.figure.Figure`
+saved through the SVG backend, so nothing opens a window or touches the
+global backend.  Output is deterministic (a fixed ``svg.hashsalt`` per
+figure, no date or creator in the metadata) and text stays text
+(``svg.fonttype = "none"``), which matplotlib escapes for XML.  Labels are
+drawn with mathtext parsing off, so a ``$`` in a group label is shown as is.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import re
+
+import numpy as np
+from scipy import stats
+
+__all__ = ["residual_quantile_svg", "spread_level_svg", "interval_svg", "svg_text",
+           "plotting_positions"]
+
+#: Colours: dark ink, a muted grey for the rest, one accent, a pale band.
+INK, MUTED, ACCENT, BAND = "#1b1b1b", "#8a8a8a", "#b3432b", "#e4ecf4"
+_MAX_POINTS = 2000          # thin the quantile plot above this many residuals
+_MAX_LABEL = 40             # clip labels drawn inside figures to this length
+_CONTROL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]")
+
+_RC = {
+    "svg.fonttype": "none",          # text as <text>, escaped by matplotlib
+    "text.parse_math": False,        # '$' in a label is a dollar sign
+    "font.family": "sans-serif",
+    "font.sans-serif": ["DejaVu Sans"],
+    "font.size": 9.0,
+    "axes.edgecolor": "#555555",
+    "axes.linewidth": 0.8,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "xtick.color": "#333333",
+    "ytick.color": "#333333",
+    "axes.titlesize": 10.0,
+    "axes.titleweight": "bold",
+    "axes.titlelocation": "left",
+    "legend.frameon": False,
+    "path.simplify": True,
+}
+
+
+def _clip(label: str, width: int = _MAX_LABEL) -> str:
+    label = _CONTROL.sub("\ufffd", str(label))
+    return label if len(label) <= width else label[:width - 1] + "…"
+
+
+def svg_text(draw, name: str, size: tuple[float, float], title: str = "") -> str:
+    """Draw a figure with ``draw(fig)`` and return its ``<svg>`` element as text.
+
+    Parameters
+    ----------
+    draw : callable
+        Receives a fresh :class:`matplotlib.figure.Figure` and draws on it.
+    name : str
+        Used for the root element's ``id`` (``fig-<name>``) and as the hash
+        salt of the element ids inside, so figures on one page never share
+        an id and the same input gives byte-identical output.
+    size : (float, float)
+        Width and height in inches.
+    title : str, optional
+        Accessible title (``aria-label``) of the figure.
+    """
+    import matplotlib
+    from matplotlib.figure import Figure
+
+    rc = dict(_RC, **{"svg.hashsalt": f"famwise-{name}"})
+    with matplotlib.rc_context(rc):
+        fig = Figure(figsize=size, dpi=72, layout="constrained")
+        draw(fig)
+        buf = io.StringIO()
+        fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": None,
+                                                  "Format": None, "Type": None})
+    text = buf.getvalue()
+    text = text[text.index("<svg"):]
+    text = re.sub(r"\s*<metadata>.*?</metadata>", "", text, count=1, flags=re.S)
+    # Inline SVG shares the page's id space: prefix every id and local
+    # reference, and drop the namespace declarations HTML does not need.
+    text = re.sub(r'\bid="([^"]*)"', rf'id="{name}-\1"', text)
+    text = re.sub(r'url\(#([^)]*)\)', rf'url(#{name}-\1)', text)
+    text = re.sub(r'href="#([^"]*)"', rf'href="#{name}-\1"', text)
+    text = re.sub(r'\s+xmlns(:xlink)?="[^"]*"', "", text)
+    from html import escape
+    text = text.replace("<svg ", f'<svg id="fig-{name}" role="img" '
+                                 f'aria-label="{escape(title or name)}" ', 1)
+    return text.strip()
+
+
+def plotting_positions(n: int) -> np.ndarray:
+    """Return Blom's (1958) plotting positions ``(i - 3/8) / (n + 1/4)``.
+
+    Blom, G. (1958). *Statistical Estimates and Transformed Beta-Variables*.
+    Wiley, New York.
+    """
+    i = np.arange(1, n + 1, dtype=np.float64)
+    return (i - 0.375) / (n + 0.25)
+
+
+def residual_quantile_svg(z: np.ndarray) -> str:
+    """Return the normal quantile plot of standardised residuals ``z``.
+
+    Above ``_MAX_POINTS`` residuals, the 100 most extreme at each end and an
+    evenly spaced selection of the rest are drawn (the caption says so), so
+    the page stays small while the tails stay visible.
+    """
+    z = np.sort(np.asarray(z, dtype=np.float64)[np.isfinite(z)])
+    n = z.size
+    q = stats.norm.ppf(plotting_positions(n)) if n else np.empty(0)
+    if n > _MAX_POINTS:
+        inner = np.linspace(100, n - 101, _MAX_POINTS - 200).round().astype(int)
+        keep = np.unique(np.concatenate([np.arange(100), inner, np.arange(n - 100, n)]))
+        z, q = z[keep], q[keep]
+
+    def draw(fig):
+        ax = fig.add_subplot()
+        if z.size:
+            lim = float(max(np.max(np.abs(z)), np.max(np.abs(q)), 1.0)) * 1.08
+            ax.plot([-lim, lim], [-lim, lim], color=MUTED, lw=1, ls="--",
+                    label="y = x (normal errors)")
+            ax.plot(q, z, "o", ms=3.5, mfc="none", mec=INK, mew=0.8,
+                    label="standardised residual")
+            ax.set_xlim(-lim, lim)
+            ax.set_ylim(-lim, lim)
+            ax.legend(loc="upper left", fontsize=8)
+        else:
+            ax.text(0.5, 0.5, "no residuals", ha="center", va="center",
+                    transform=ax.transAxes)
+        ax.set_xlabel("normal quantile")
+        ax.set_ylabel("standardised residual")
+        ax.set_title("Residuals against normal quantiles")
+        ax.grid(True, color="#e6e6e6", lw=0.6)
+        ax.set_axisbelow(True)
+
+    return svg_text(draw, "residual-quantiles", (4.6, 4.2),
+                    "Normal quantile plot of the standardised within-group residuals")
+
+
+def spread_level_svg(labels, mean, sd, residual_level=None, residual_abs=None,
+                     response: str = "response") -> str:
+    """Return the spread-against-level plot: group SD against group mean.
+
+    Parameters
+    ----------
+    labels : sequence of str
+        Group labels (drawn beside the points when there are at most 20).
+    mean, sd : array_like
+        Group means and SDs.
+    residual_level, residual_abs : array_like, optional
+        For each observation, its group's mean and its absolute residual;
+        drawn as small grey points behind the SDs.
+    response : str
+        Name of the response, for the axis labels.
+    """
+    mean = np.asarray(mean, dtype=np.float64)
+    sd = np.asarray(sd, dtype=np.float64)
+    labels = [_clip(s, 24) for s in labels]
+    resp = _clip(response, 30)
+
+    def draw(fig):
+        ax = fig.add_subplot()
+        if residual_level is not None and np.size(residual_level):
+            ax.plot(residual_level, residual_abs, ".", ms=3, color="#c4c4c4",
+                    label="|residual| of one observation")
+        ok = np.isfinite(mean) & np.isfinite(sd)
+        ax.plot(mean[ok], sd[ok], "s", ms=6, color=INK, label="group SD")
+        if len(labels) <= 20:
+            for x, y, lab in zip(mean[ok], sd[ok], np.asarray(labels, dtype=object)[ok]):
+                ax.annotate(lab, (x, y), xytext=(5, 3), textcoords="offset points",
+                            fontsize=8, color="#333333")
+        ax.set_xlabel(f"group mean of {resp}")
+        ax.set_ylabel("spread (SD; grey: |residual|)")
+        ax.set_title("Spread against level")
+        ax.set_ylim(bottom=0)
+        ax.grid(True, color="#e6e6e6", lw=0.6)
+        ax.set_axisbelow(True)
+        ax.legend(loc="upper left", fontsize=8)
+
+    return svg_text(draw, "spread-level", (4.6, 4.2),
+                    "Group standard deviation against group mean")
+
+
+def interval_svg(names, difference, lower, upper, reject, *, margin=None,
+                 level: str = "95%", unit: str = "") -> str:
+    """Return the interval plot: one row per comparison, first comparison on top.
+
+    Intervals that are unbounded on one side (one-sided tests) run to the
+    edge of the plot and end in an arrow head.  Comparisons declared
+    different are drawn in the accent colour with a filled marker; the others
+    in grey with an open marker.
+    """
+    d = np.asarray(difference, dtype=np.float64)
+    lo = np.asarray(lower, dtype=np.float64)
+    hi = np.asarray(upper, dtype=np.float64)
+    rej = np.asarray(reject, dtype=bool)
+    m = d.size
+    names = [_clip(s) for s in names]
+    finite = np.concatenate([v[np.isfinite(v)] for v in (d, lo, hi)] + [np.zeros(1)])
+    if margin is not None:
+        finite = np.concatenate([finite, [-margin, margin]])
+    span = float(finite.max() - finite.min()) or 1.0
+    xmin, xmax = finite.min() - 0.06 * span, finite.max() + 0.06 * span
+    height = min(1.4 + 0.28 * m, 60.0)
+
+    def draw(fig):
+        ax = fig.add_subplot()
+        y = np.arange(m)[::-1].astype(float)
+        if margin is not None:
+            ax.axvspan(-margin, margin, color=BAND, lw=0, gid="margin-band",
+                       label=f"margin ±{_fmt(margin)}", zorder=0)
+        ax.axvline(0.0, color=INK, lw=0.9, zorder=1, gid="zero-line")
+        for group, colour, marker, fill, text, gid in (
+                (rej, ACCENT, "D", ACCENT, "declared different", "declared-different"),
+                (~rej, MUTED, "o", "white", "not shown to differ", "not-shown-to-differ")):
+            if not group.any():
+                continue
+            a = np.where(np.isfinite(lo[group]), lo[group], xmin)
+            b = np.where(np.isfinite(hi[group]), hi[group], xmax)
+            ax.hlines(y[group], a, b, color=colour, lw=2.2, zorder=2, gid=gid + "-intervals")
+            ax.plot(d[group], y[group], marker, ms=5.5, mfc=fill, mec=colour, mew=1.3,
+                    ls="none", zorder=3, label=text, gid=gid)
+            for yy, open_lo, open_hi in zip(y[group], ~np.isfinite(lo[group]),
+                                            ~np.isfinite(hi[group])):
+                if open_lo:
+                    ax.plot([xmin], [yy], "<", color=colour, ms=6, zorder=3)
+                if open_hi:
+                    ax.plot([xmax], [yy], ">", color=colour, ms=6, zorder=3)
+        ax.set_yticks(y, names)
+        ax.set_ylim(-0.7, m - 0.3)
+        ax.set_xlim(xmin, xmax)
+        ax.set_xlabel("difference" + (f" ({_clip(unit, 30)})" if unit else "")
+                      + f", {level} interval")
+        ax.set_title("Differences and their intervals")
+        ax.grid(True, axis="x", color="#e6e6e6", lw=0.6)
+        ax.set_axisbelow(True)
+        ax.spines["left"].set_visible(False)
+        ax.tick_params(axis="y", length=0)
+        ax.legend(loc="lower center", bbox_to_anchor=(0.5, 1.04), ncol=3, fontsize=8)
+
+    return svg_text(draw, "intervals", (7.2, height),
+                    "Differences with their intervals, the zero line"
+                    + (" and the margin band" if margin is not None else ""))
+
+
+def _fmt(x: float) -> str:
+    from ..textformat import format_number
+    return format_number(x) if math.isfinite(x) else str(x)
