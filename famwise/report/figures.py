@@ -218,7 +218,7 @@ def interval_svg(names, difference, lower, upper, reject, *, margin=None,
         finite = np.concatenate([finite, [-margin, margin]])
     span = float(finite.max() - finite.min()) or 1.0
     xmin, xmax = finite.min() - 0.06 * span, finite.max() + 0.06 * span
-    height = min(1.4 + 0.28 * m, 60.0)
+    height = min(1.5 + 0.28 * m, 60.0)
 
     def draw(fig):
         ax = fig.add_subplot()
@@ -248,12 +248,11 @@ def interval_svg(names, difference, lower, upper, reject, *, margin=None,
         ax.set_xlim(xmin, xmax)
         ax.set_xlabel("difference" + (f" ({_clip(unit, 30)})" if unit else "")
                       + f", {level} interval")
-        ax.set_title("Differences and their intervals")
         ax.grid(True, axis="x", color="#e6e6e6", lw=0.6)
         ax.set_axisbelow(True)
         ax.spines["left"].set_visible(False)
         ax.tick_params(axis="y", length=0)
-        ax.legend(loc="lower center", bbox_to_anchor=(0.5, 1.04), ncol=3, fontsize=8)
+        fig.legend(loc="outside upper left", ncol=3, fontsize=8)
 
     return svg_text(draw, "intervals", (7.2, height),
                     "Differences with their intervals, the zero line"

@@ -449,7 +449,8 @@ def _crosscheck(result) -> str:
     return _section("crosscheck", "".join(out))
 
 
-def _calibration(cal) -> str:
+def _calibration(cal, procedure: str) -> str:
+    """Render a :class:`famwise.diagnostics.calibrate.Calibration` (or plain data)."""
     out = []
     sentence = getattr(cal, "sentence", None)
     if callable(sentence):
@@ -457,19 +458,42 @@ def _calibration(cal) -> str:
     if isinstance(sentence, str) and sentence:
         out.append(f"<p>{_e(sentence)}</p>")
     table = getattr(cal, "table", None)
-    if isinstance(table, pd.DataFrame):
-        out.append(_frame(table))
-    if hasattr(cal, "to_dict"):
-        data = cal.to_dict()
-    elif dataclasses.is_dataclass(cal) and not isinstance(cal, type):
-        data = dataclasses.asdict(cal)
+    if isinstance(table, pd.DataFrame) and {"procedure", "fwer", "se"} <= set(table):
+        alpha = getattr(cal, "alpha", None)
+        out.append("<p>Estimated familywise error rate of each candidate under the "
+                   "complete null (every group mean equal) at the observed group sizes and "
+                   "SDs; the procedure used here is marked.</p>")
+        rows = []
+        for r in table.to_dict(orient="records"):
+            holds = r.get("holds")
+            rows.append((r["procedure"] + ("  (used here)" if r["procedure"] == procedure
+                                           else ""),
+                         r["fwer"], r["se"], r.get("replicates"),
+                         _tag("within alpha + 2 SE", "ok") if holds else
+                         _tag("above alpha + 2 SE", "violated"), r.get("method", "")))
+        out.append(_table(["procedure", "estimated error rate", "Monte Carlo SE",
+                           "replicates", f"against alpha = {alpha:g}" if alpha else "verdict",
+                           "how"], rows, numeric=(1, 2, 3)))
+        routes = getattr(cal, "routes", None)
+        if routes:
+            total = sum(routes.values())
+            out.append("<h3>Procedures the pipeline chose on the simulated data</h3>"
+                       + _table(["procedure", "replicates", "share"],
+                                [(k, v, v / total) for k, v in sorted(routes.items())],
+                                numeric=(1, 2)))
+        facts = [(k, getattr(cal, k)) for k in ("shape", "replicates", "seed")
+                 if hasattr(cal, k)]
+        if facts:
+            out.append(_facts([("errors simulated as" if k == "shape" else k, v)
+                               for k, v in facts]))
     else:
-        data = cal
-    if isinstance(data, dict):
-        data = {k: v for k, v in data.items()
-                if not (k == "table" and isinstance(table, pd.DataFrame))
-                and not (k == "sentence" and isinstance(sentence, str))}
-    out.append(_value_html(data))
+        if hasattr(cal, "to_dict"):
+            data = cal.to_dict()
+        elif dataclasses.is_dataclass(cal) and not isinstance(cal, type):
+            data = dataclasses.asdict(cal)
+        else:
+            data = cal
+        out.append(_value_html(data))
     return _section("calibration", "".join(out))
 
 
@@ -570,13 +594,13 @@ def html_report(result) -> str:
         and no reference to any network resource; the same result gives the
         same text.
     """
-    lay = result.layout
+    lay, rec = result.layout, result.decision
     title = f"famwise report: {lay.response} by {lay.group}"
     sections = [_verdict(result), _rows(result), _checks(result), _comparisons(result),
                 _crosscheck(result)]
     present = ["verdict", "rows", "checks", "comparisons", "crosscheck"]
     if result.calibration is not None:
-        sections.append(_calibration(result.calibration))
+        sections.append(_calibration(result.calibration, rec.route["procedure"]))
         present.append("calibration")
     sections += [_reproduce(result), _cautions()]
     present += ["reproduce", "cautions"]
@@ -584,7 +608,6 @@ def html_report(result) -> str:
     nav = ('<nav aria-label="Sections"><ol>'
            + "".join(f'<li><a href="#{s}">{_e(headings[s])}</a></li>' for s in present)
            + "</ol></nav>")
-    rec = result.decision
     header = (f"<header><h1>{_e(title)}</h1><p>{_e(rec.route['procedure'])} · "
               f"{rec.family['m']} comparison{'s' if rec.family['m'] != 1 else ''} · "
               f"familywise alpha {rec.alpha:g} · famwise "
