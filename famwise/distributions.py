@@ -695,11 +695,6 @@ def _ppf_tail(fun, p_lower, x0_lo, x0_hi):
 # Public API: studentized range
 # ---------------------------------------------------------------------------
 
-_REF_CH = ("Copenhaver, M. D. & Holland, B. (1988). Computation of the distribution of the "
-           "maximum studentized range statistic with application to multiple significance "
-           "testing of simple effects. J. Stat. Comput. Simul. 30(1):1-15. "
-           "doi:10.1080/00949658808811082")
-
 
 def srange_cdf(q, k, df):
     """Compute the CDF of the studentized range distribution.
