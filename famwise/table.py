@@ -90,8 +90,12 @@ def comparisons_table(
         data["mc_error"] = _column(mc_error, m, "mc_error")
     for key, value in extra.items():
         arr = np.asarray(value)
-        data[key] = (_column(arr, m, key) if arr.dtype.kind in "biuf"
-                     else list(np.broadcast_to(arr, (m,))))
+        if arr.dtype.kind == "b":
+            data[key] = np.broadcast_to(arr, (m,)).copy()
+        elif arr.dtype.kind in "iuf":
+            data[key] = _column(arr, m, key)
+        else:
+            data[key] = list(np.broadcast_to(arr, (m,)))
     table = pd.DataFrame(data)
     table.attrs["alpha"] = float(alpha)
     table.attrs["family"] = family.kind
