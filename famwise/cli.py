@@ -282,24 +282,11 @@ def _run_procedures(args) -> int:
 
 
 def _run_demo(args) -> int:
-    from .demo import DEMO_GROUP, DEMO_RESPONSE, covercrop_trial
-    from .intake import read
-    from .output import prepare_folder, safe_csv_text, write_atomic
-    from .summary import group_summary
-    names = ("groups.csv", "ledger.csv", "summary.txt", "covercrop_nitrate.csv")
-    folder = prepare_folder(args.out, names, force=args.force)
-    data = covercrop_trial()
-    data_path = os.path.join(folder, "covercrop_nitrate.csv")
-    write_atomic(data_path, data.to_csv(index=False, lineterminator="\n"))
-    intake = read(data_path, DEMO_RESPONSE, DEMO_GROUP, merge_spellings=True)
-    summary = group_summary(intake.layout)
-    text = _inspection_text(intake, summary)
-    write_atomic(os.path.join(folder, "groups.csv"), safe_csv_text(summary))
-    write_atomic(os.path.join(folder, "ledger.csv"), safe_csv_text(intake.ledger.to_frame()))
-    write_atomic(os.path.join(folder, "summary.txt"), text + "\n")
+    from .demo import run_demo
+    text, folder = run_demo(args.out, force=args.force)
     if not args.quiet:
         print(text)
-        print(f"\nwrote {', '.join(names)} to {folder}")
+        print(f"\nwrote the report and tables to {folder}")
     return 0
 
 

@@ -77,3 +77,49 @@ def covercrop_trial(seed: int = DEMO_SEED) -> pd.DataFrame:
     frame.loc[oat[3], DEMO_RESPONSE] = f"{value * 10:.0f}"
     frame.loc[oat[3], "note"] = "entered without the decimal point?"
     return frame
+
+
+#: Rows the walk-through sets aside after checking the records: the plot beside
+#: the manure heap (row 19) and the value entered without its decimal point (row 37).
+REVIEWED_EXCLUSIONS = (19, 37)
+
+
+def run_demo(folder: str = "out/demo", force: bool = False) -> tuple[str, str]:
+    """Run famwise on the trial as recorded, then after the review of flagged rows.
+
+    Writes the data and every result file to ``folder`` (the trial as
+    recorded) and to ``folder/after-review`` (rows 19 and 37 excluded), and
+    returns the text to print and the folder.
+    """
+    import os
+
+    from .api import compare
+    from .output import prepare_folder, write_atomic
+    from .report.files import OUTPUT_FILES
+
+    data_name = "covercrop_nitrate.csv"
+    review = os.path.join(folder, "after-review")
+    prepare_folder(folder, OUTPUT_FILES + (data_name,), force=force)
+    prepare_folder(review, OUTPUT_FILES, force=force)
+    path = os.path.join(folder, data_name)
+    write_atomic(path, covercrop_trial().to_csv(index=False, lineterminator="\n"))
+    options = dict(merge_spellings=True, seed=DEMO_SEED, resamples=9999, calibrate=1000)
+    first = compare(path, DEMO_RESPONSE, DEMO_GROUP, **options,
+                    command=f"famwise compare {path} --response {DEMO_RESPONSE} "
+                            f"--group {DEMO_GROUP} --merge-spellings --seed {DEMO_SEED} "
+                            f"--calibrate 1000")
+    first.save(folder, force=force)
+    rows = ",".join(map(str, REVIEWED_EXCLUSIONS))
+    second = compare(path, DEMO_RESPONSE, DEMO_GROUP, **options,
+                     exclude_rows=REVIEWED_EXCLUSIONS,
+                     command=f"famwise compare {path} --response {DEMO_RESPONSE} "
+                             f"--group {DEMO_GROUP} --merge-spellings --seed {DEMO_SEED} "
+                             f"--calibrate 1000 --exclude-rows {rows}")
+    second.save(review, force=force)
+    text = "\n".join([
+        "=== The trial as recorded ===", first.summary(), "",
+        f"=== After checking rows {rows} against the field and lab records ===",
+        "Row 19 is the plot beside the manure heap and row 37 a value typed without its",
+        f"decimal point; both are excluded (--exclude-rows {rows}) and the ledger says so.",
+        "", second.summary()])
+    return text, folder

@@ -44,15 +44,20 @@ def test_demo_command_writes_its_files(tmp_path, capsys):
     out = tmp_path / "demo"
     assert main(["demo", "--out", str(out)]) == 0
     printed = capsys.readouterr().out
-    assert "53 rows read, 47 used, 6 set aside" in printed
-    for name in ("groups.csv", "ledger.csv", "summary.txt", "covercrop_nitrate.csv"):
-        assert (out / name).stat().st_size > 0
+    assert "47 of 53 rows used" in printed and "45 of 53 rows used" in printed
+    for folder in (out, out / "after-review"):
+        for name in ("comparisons.csv", "groups.csv", "ledger.csv", "decision.json",
+                     "summary.txt", "report.html"):
+            assert (folder / name).stat().st_size > 0
     groups = pd.read_csv(out / "groups.csv")
     assert list(groups["group"]) == list(MIXES)
-    # A second run without --force refuses, and with --force replaces.
+    ledger = pd.read_csv(out / "after-review" / "ledger.csv")
+    assert sorted(ledger.loc[ledger["reason"] == "excluded", "row"]) == [19, 37]
+    decision = json.loads((out / "after-review" / "decision.json").read_text())
+    assert "--exclude-rows 19,37" in decision["command"]
+    # A second run without --force refuses before doing any work.
     assert main(["demo", "--out", str(out)]) == 2
     assert "already holds" in capsys.readouterr().err
-    assert main(["demo", "--out", str(out), "--force", "--quiet"]) == 0
 
 
 def test_inspect_formats(capsys):
