@@ -106,6 +106,7 @@ figure { margin: .8rem 0 1.2rem; break-inside: avoid; page-break-inside: avoid; 
 figure svg { max-width: 100%; height: auto; }
 figcaption { font-size: .85rem; color: var(--muted); max-width: 44rem; }
 .figures { display: flex; flex-wrap: wrap; gap: 0 1.5rem; }
+.figures > figure { flex: 0 1 28rem; }
 pre { background: var(--pale); padding: .6rem .8rem; white-space: pre-wrap;
       word-break: break-all; font-size: .85rem; }
 code, pre { font-family: "DejaVu Sans Mono", Menlo, Consolas, monospace; }
