@@ -70,7 +70,7 @@ from scipy import stats as _st
 
 from . import adjust as _adjust
 from . import distributions as _dist
-from .errors import FamwiseInputError
+from .errors import FamwiseError, FamwiseInputError
 from .families import Family, all_pairs
 from .layout import Layout, group_stats
 from .table import comparisons_table
@@ -162,7 +162,8 @@ def _setup(layout, family, alpha, alternative, allowed, procedure):
     if alternative not in allowed:
         raise FamwiseInputError(
             f"alternative must be 'two-sided' for {procedure} (its reference "
-            f"distribution is of a maximum modulus); got {alternative!r}; use "
+            f"distribution, of a range or a maximum modulus, is two-sided); got "
+            f"{alternative!r}; use "
             f"'welch-holm' or 'welch-dunnett' for one-sided tests")
     g = _groups(layout, _involved(family))
     return alpha, g
@@ -937,15 +938,20 @@ def welch_dunnett(layout: Layout, family: Family, *, alpha: float = 0.05,
     t = ws.statistic
     side = "two-sided" if alternative == "two-sided" else "greater"
     stat = np.abs(t) if alternative == "two-sided" else (t if alternative == "greater" else -t)
-    p_adj = np.empty(family.m)
-    for df in np.unique(ws.df):
-        rows = ws.df == df
-        p_adj[rows] = _dist.dunnett_sf(stat[rows], lam, float(df), alternative=side)
     def sf_at(c, d):
         return np.array([float(_dist.dunnett_sf(ci, lam, float(di), alternative=side))
                          for ci, di in zip(c, d)])
 
-    crit = critical_values_over_df(sf_at, alpha, ws.df)
+    try:
+        p_adj = sf_at(stat, ws.df)
+        crit = critical_values_over_df(sf_at, alpha, ws.df)
+    except RuntimeError as exc:   # a limitation of the distribution code, not bad input
+        worst = int(np.argmax(lam))
+        raise FamwiseError(
+            f"welch-dunnett could not evaluate the max-|t| probability ({exc}); the "
+            f"reference {family.labels[family.reference]!r} is far noisier than "
+            f"{family.names[worst]!r} (lambda = {lam[worst]:.6g}); use 'dunnett-t3' "
+            f"for this family") from exc
     p_unadj = _t_pvalue(t, ws.df, alternative)
     lower, upper = _interval(ws.difference, ws.std_error, crit, alternative)
     return _table(family, ws, p_unadj, p_adj, lower, upper, alpha, "welch-dunnett",
