@@ -30,7 +30,12 @@ yuen_holm      pairs                       Yuen trimmed-mean t; Holm p-values,
 The vectorised cores :func:`welch_statistics`, :func:`games_howell_pvalues`
 and :func:`dunnett_t3_pvalues` work from summary statistics with any leading
 (replicate) axes, so an error-rate simulation draws means and variances
-rather than raw data and calls the distribution functions once per batch.
+rather than raw data and calls the distribution functions once per batch;
+:func:`games_howell_rejects` and :func:`dunnett_t3_rejects` give the same
+decisions at one alpha for a fraction of the cost.  Per-comparison critical
+values at many distinct df come from :func:`critical_values_over_df`
+(Chebyshev interpolation in df with an error check), so the cost of a
+procedure does not grow with the number of distinct df.
 
 Numerics: group means are computed from values shifted by their median and
 standard errors from variances scaled by their largest, so adding 1e12 to
