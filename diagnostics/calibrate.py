@@ -74,20 +74,19 @@ def quick_fwer(procedure: str, n, sd, *, alpha: float = 0.05, replicates: int = 
     a second for 4,000 replicates of a few groups.  Supports ``games-howell``,
     ``dunnett-t3`` and ``tukey-kramer``.
     """
-    from ..unequal import dunnett_t3_pvalues, games_howell_pvalues
+    from ..unequal import dunnett_t3_rejects, games_howell_rejects
     rng = np.random.default_rng(seed)
     means, variances = _null_summaries(rng, n, sd, replicates)
     n = np.asarray(n)
     if procedure == "games-howell":
-        p = games_howell_pvalues(means, variances, n)
+        hits = games_howell_rejects(means, variances, n, alpha).any(axis=-1)
     elif procedure == "dunnett-t3":
-        p = dunnett_t3_pvalues(means, variances, n)
+        hits = dunnett_t3_rejects(means, variances, n, alpha).any(axis=-1)
     elif procedure == "tukey-kramer":
-        p = _pooled_all_pairs_p(means, variances, n)
+        hits = np.min(_pooled_all_pairs_p(means, variances, n), axis=-1) <= alpha
     else:
         raise FamwiseInputError(f"quick calibration supports games-howell, dunnett-t3 and "
                                 f"tukey-kramer; got {procedure!r}")
-    hits = np.min(p, axis=-1) <= alpha
     fwer = float(hits.mean())
     return {"procedure": procedure, "fwer": fwer,
             "se": float(np.sqrt(max(fwer * (1 - fwer), 1e-12) / replicates)),
@@ -208,7 +207,12 @@ def _pooled_t(w, means, variances, n):
 
 
 def _closed_form_min_p(name, family, rep: _Replicates, alpha):
-    """Return (min adjusted p per replicate, replicates used) for a closed form."""
+    """Return (min adjusted p per replicate, replicates used) for a closed form.
+
+    For Games-Howell and Dunnett's T3 the value is only the decision at alpha
+    (0 = rejects, 1 = does not), from the fast one-alpha cores of
+    famwise.unequal; every caller compares it with alpha.
+    """
     from ..adjust import bh
     w, n = family.weights, rep.n
     m = family.m
@@ -233,11 +237,13 @@ def _closed_form_min_p(name, family, rep: _Replicates, alpha):
             return stats.f.sf(t * t / (rep.k - 1), rep.k - 1, df).min(axis=1), len(p)
         lam = np.sqrt(1.0 / (1.0 + n[family.reference] / n[family.pairs[:, 0]]))
         return dist.dunnett_sf(np.abs(t).max(axis=1), lam, df), len(p)
-    from ..unequal import dunnett_t3_pvalues, games_howell_pvalues
+    from ..unequal import dunnett_t3_rejects, games_howell_rejects
     if name == "games-howell":
-        return games_howell_pvalues(means, variances, n, family.pairs).min(axis=1), len(means)
+        hits = games_howell_rejects(means, variances, n, alpha, family.pairs).any(axis=1)
+        return np.where(hits, 0.0, 1.0), len(means)
     if name == "dunnett-t3":
-        return dunnett_t3_pvalues(means, variances, n, w).min(axis=1), len(means)
+        hits = dunnett_t3_rejects(means, variances, n, alpha, w).any(axis=1)
+        return np.where(hits, 0.0, 1.0), len(means)
     if name in ("welch", "welch-holm"):
         t, df = _welch_t(w, means, variances, n)
         p = 2 * stats.t.sf(np.abs(t), df)
