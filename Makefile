@@ -4,7 +4,7 @@ VENV   := .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed-test
 
-.PHONY: test test-slow demo bench clean
+.PHONY: test test-slow demo demo-batch bench clean
 
 $(PY):
 	$(PYTHON) -m venv $(VENV)
@@ -22,6 +22,10 @@ test-slow: $(STAMP)
 
 demo: $(STAMP)
 	$(VENV)/bin/famwise demo --out out/demo --force
+
+demo-batch: $(STAMP)
+	$(VENV)/bin/famwise batch demos/water_quality.csv --all-numeric --group station \
+	    --seed 20260417 --jobs 2 --out out/demo-batch --force
 
 bench: $(STAMP)
 	$(PY) tests/bench/run_all.py

@@ -157,15 +157,26 @@ class BatchResult:
             f"familywise error rate. Within each task the comparisons hold the "
             f"familywise error rate at {rec['settings']['alpha']:g}.", width=width)
         lines.append("")
-        shown = ["response"] + (["stratum"] if "stratum" in t else []) + [
-            "status", "procedure", "omnibus", "omnibus_p", "omnibus_q", "omnibus_reject",
-            "declared_different", "comparisons", "smallest_p_adjusted", "unsettled",
-            "n_set_aside"]
-        view = t[shown].rename(columns={"declared_different": "different",
-                                        "comparisons": "of", "smallest_p_adjusted": "min_p_adj",
-                                        "omnibus_reject": "screened_in",
-                                        "n_set_aside": "set_aside"})
-        lines.append(frame_text(view, max_label=24))
+        view = pd.DataFrame({"response": t["response"]})
+        if "stratum" in t:
+            view["stratum"] = t["stratum"]
+        ran = t["status"] == "ok"
+        view["procedure"] = t["procedure"].where(ran, "(" + t["status"] + ")")
+        view["omnibus"] = t["omnibus"].map({"anova-f": "F", "welch-anova": "Welch"})
+        view["p"] = t["omnibus_p"]
+        view["q"] = t["omnibus_q"]
+        view["screened"] = t["omnibus_reject"]
+        view["different"] = [f"{d}/{m}" if r else "-" for d, m, r in
+                             zip(t["declared_different"], t["comparisons"], ran)]
+        view["min_p_adj"] = t["smallest_p_adjusted"]
+        view["unsettled"] = t["unsettled"]
+        view["set_aside"] = t["n_set_aside"]
+        lines.append(frame_text(_display(view), max_label=26))
+        lines += textwrap.wrap(
+            f"(p: omnibus p-value, F = one-way ANOVA, Welch = Welch's ANOVA; q: "
+            f"{fdr['method'].upper()}-adjusted across tasks; screened: q <= "
+            f"{fdr['level']:g}; different: comparisons declared different / comparisons)",
+            width=width)
         failed = t[t["status"] != "ok"]
         if len(failed):
             lines += ["", "Could not run:"]
@@ -216,6 +227,25 @@ class BatchResult:
         write_atomic(path, self.to_json() + "\n")
         written.append(path)
         return written
+
+
+def _display(view: pd.DataFrame) -> pd.DataFrame:
+    """Pre-format numeric columns holding missing values ("-"), right-aligned."""
+    from .textformat import format_number
+    view = view.copy()
+    for c in view.columns:
+        col = view[c]
+        if col.isna().any() and (pd.api.types.is_numeric_dtype(col.dtype)
+                                 or pd.api.types.is_bool_dtype(col.dtype)):
+            cast = int if pd.api.types.is_integer_dtype(col.dtype) else (
+                bool if pd.api.types.is_bool_dtype(col.dtype) else float)
+            text = ["-" if pd.isna(v) else format_number(cast(v)) for v in col]
+            width = max(len(str(c)), *(len(t) for t in text))
+            view[c] = pd.Series([t.rjust(width) for t in text], index=view.index, dtype=object)
+        elif not (pd.api.types.is_numeric_dtype(col.dtype)
+                  or pd.api.types.is_bool_dtype(col.dtype)):
+            view[c] = col.fillna("-")
+    return view
 
 
 def _plain(x):

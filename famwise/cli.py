@@ -31,6 +31,15 @@ examples:
 """
 
 
+BATCH_EXAMPLES = """\
+examples:
+  famwise batch survey.csv --all-numeric --group station --out results/
+  famwise batch survey.csv --responses nitrate,chloride --group station --by year --fdr by
+  famwise batch survey.csv --all-numeric -g station --jobs 2
+  famwise batch survey.csv --all-numeric -g station --backend dask --scheduler tcp://10.0.0.5:8786
+"""
+
+
 class _Parser(argparse.ArgumentParser):
     """argparse that reports usage errors in one line with exit code 2."""
 
@@ -151,6 +160,58 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--format", choices=("text", "json", "csv"), default="text")
     p.set_defaults(run=_run_calibrate)
 
+    p = sub.add_parser("batch", help="compare groups for many responses (and strata) at once",
+                       description="Run the whole comparison for every response column (and, "
+                                   "with --by, every stratum), screen the responses by false "
+                                   "discovery rate across their omnibus p-values, and write "
+                                   "one summary row per response and stratum.",
+                       epilog=BATCH_EXAMPLES,
+                       formatter_class=argparse.RawDescriptionHelpFormatter)
+    p.add_argument("file", help="CSV/TSV/TXT, Excel (.xlsx) or Parquet file, one row per sample")
+    which = p.add_mutually_exclusive_group(required=True)
+    which.add_argument("--responses", metavar="A,B,...",
+                       help="the response columns, in the order to run them")
+    which.add_argument("--all-numeric", action="store_true",
+                       help="every column holding measurements, except --group and --by")
+    p.add_argument("--group", "-g", metavar="COL", required=True, help="column of group labels")
+    p.add_argument("--by", metavar="COL", help="column of strata (each year, each site ...)")
+    p.add_argument("--fdr", choices=("bh", "by"), default="bh",
+                   help="screen across responses: Benjamini-Hochberg (default) or "
+                        "Benjamini-Yekutieli (any dependence)")
+    p.add_argument("--family", choices=("all-pairs", "vs-reference"), default="all-pairs")
+    p.add_argument("--reference", metavar="LABEL", help="reference group for vs-reference")
+    p.add_argument("--procedure", "-p", default="auto", metavar="NAME",
+                   help="procedure identifier for every task, or auto (default)")
+    p.add_argument("--alpha", type=float, default=0.05,
+                   help="familywise level within a task, and false discovery rate across "
+                        "tasks (default 0.05)")
+    p.add_argument("--resamples", "-B", default="9999", metavar="B",
+                   help="resamples for resampling procedures, or auto (default 9999)")
+    p.add_argument("--seed", type=int, help="batch seed (default: drawn, recorded)")
+    p.add_argument("--jobs", "-j", type=int, default=1, metavar="N",
+                   help="tasks at once (-1: all cores)")
+    p.add_argument("--backend", choices=("processes", "threads", "dask"), default="processes",
+                   help="how tasks run in parallel (default processes); dask without "
+                        "--scheduler starts a LocalCluster on 127.0.0.1")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="address of a running dask.distributed scheduler (with --backend dask)")
+    p.add_argument("--policy", metavar="FILE", help="routing thresholds from a TOML file")
+    p.add_argument("--no-crosscheck", action="store_true", help="skip the second route")
+    p.add_argument("--sheet", metavar="NAME", help="Excel sheet (default: the first)")
+    p.add_argument("--delimiter", metavar="CHAR", help="field delimiter (default: detected)")
+    p.add_argument("--decimal-comma", action="store_true",
+                   help="numbers use a decimal comma (3,7)")
+    p.add_argument("--encoding", metavar="NAME", help="text encoding (default UTF-8)")
+    p.add_argument("--merge-spellings", action="store_true",
+                   help="merge labels that differ only by case or spacing")
+    p.add_argument("--out", "-o", metavar="DIR",
+                   help="write batch.csv, batch.json and one folder per task to DIR")
+    p.add_argument("--force", action="store_true", help="replace files already in DIR")
+    p.add_argument("--format", choices=("text", "json", "csv"), default="text",
+                   help="what to print: the summary, the batch record, or the table")
+    p.add_argument("--quiet", "-q", action="store_true", help="print nothing but warnings")
+    p.set_defaults(run=_run_batch)
+
     p = sub.add_parser("procedures", help="list the procedures and what each is for",
                        description="List the procedure identifiers, their route, the "
                                    "families they handle and when each fits.")
@@ -265,6 +326,41 @@ def _run_calibrate(args) -> int:
         print(textwrap.fill(result.sentence(), width=100))
         print("Pipeline choices: " + ", ".join(f"{p} {c}" for p, c in result.routes.items()))
     return 0
+
+
+def _run_batch(args) -> int:
+    """famwise batch: exit 0, or 1 when a task hit an internal error (after writing)."""
+    import shlex
+    from .batch import batch
+    if args.scheduler and args.backend != "dask":
+        raise FamwiseInputError("--scheduler needs --backend dask")
+    if args.family == "vs-reference" and not args.reference:
+        raise FamwiseInputError("--family vs-reference needs --reference LABEL")
+    command = shlex.join(["famwise", *sys.argv[1:]]) if sys.argv[1:] else None
+    result = batch(args.file, "all-numeric" if args.all_numeric else _split(args.responses),
+                   args.group, by=args.by, family=args.family, reference=args.reference,
+                   procedure=args.procedure, alpha=args.alpha, fdr=args.fdr,
+                   resamples=_resamples(args.resamples), seed=args.seed, n_jobs=args.jobs,
+                   backend=args.backend, scheduler=args.scheduler, policy=args.policy,
+                   crosscheck=not args.no_crosscheck, out=args.out, force=args.force,
+                   command=command, sheet=args.sheet, delimiter=args.delimiter,
+                   decimal="," if args.decimal_comma else ".", encoding=args.encoding,
+                   merge_spellings=args.merge_spellings)
+    if not args.quiet:
+        if args.format == "json":
+            print(result.to_json())
+        elif args.format == "csv":
+            from .output import safe_csv_text
+            sys.stdout.write(safe_csv_text(result.table))
+        else:
+            print(result.summary())
+            if args.out:
+                print(f"\nwrote batch.csv, batch.json and one folder per task to {args.out}")
+    failed = result.table[result.table["status"] == "internal-error"]
+    for r in failed.itertuples():
+        print(f"famwise: internal error in task {r.response}: {r.reason} "
+              f"(set FAMWISE_DEBUG=1 and run the task's compare command)", file=sys.stderr)
+    return 1 if len(failed) else 0
 
 
 def _run_procedures(args) -> int:
