@@ -23,7 +23,7 @@ examples:
   famwise compare trial.csv -r nitrate_mg_kg -g mix --family vs-reference \\
       --reference "Bare fallow" --alternative less --margin 5
   famwise compare trial.csv -r nitrate_mg_kg -g mix --family contrasts \\
-      --contrasts "legumes: (\`Rye + hairy vetch\` + \`Crimson clover\`)/2 - \`Cereal rye\`"
+      --contrasts 'legumes: (`Rye + hairy vetch` + `Crimson clover`)/2 - `Cereal rye`'
   famwise inspect trial.csv --response nitrate_mg_kg --group mix
   famwise inspect plots.xlsx --sheet 2025 --response yield --group variety
   famwise inspect wide.csv --wide --columns "Rye,Fallow,Clover"
