@@ -69,7 +69,7 @@ from .ledger import Dropped, Ledger
 from .output import prepare_folder, safe_csv_text, write_atomic
 
 __all__ = ["batch", "BatchResult", "BatchWarning", "BATCH_SCHEMA", "BATCH_FILES",
-           "folder_name", "numeric_columns"]
+           "fdr_screen", "folder_name", "numeric_columns", "task_seed"]
 
 BATCH_SCHEMA = "famwise.batch/1"
 BATCH_FILES = ("batch.csv", "batch.json")
@@ -469,9 +469,13 @@ def _start_cluster(n_jobs):
             "backend='dask' needs dask.distributed; install famwise[dask]") from None
     import joblib
     workers = joblib.effective_n_jobs(n_jobs) if n_jobs not in (None, 1) else (os.cpu_count() or 1)
-    cluster = distributed.LocalCluster(n_workers=max(1, workers), threads_per_worker=1,
-                                       processes=True, host="127.0.0.1",
-                                       dashboard_address=None, silence_logs=logging.ERROR)
+    with warnings.catch_warnings():
+        # The scheduler's bare HTTP endpoint binds 127.0.0.1 and moves to a free
+        # port when 8787 is taken; that move is not the user's concern.
+        warnings.filterwarnings("ignore", message="Port .* is already in use")
+        cluster = distributed.LocalCluster(n_workers=max(1, workers), threads_per_worker=1,
+                                           processes=True, host="127.0.0.1",
+                                           dashboard_address=None, silence_logs=logging.ERROR)
     return distributed.Client(cluster, set_as_default=False), cluster
 
 
@@ -728,10 +732,7 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
     for text in notices:
         warnings.warn(BatchWarning(text), stacklevel=2)
     cautions = []
-    if any(any(r in (o.ledger.counts() if o.ledger else {}) for r in _CENSORED_REASONS)
-           for o in outcomes) or any(
-            "no numeric values" in o.reason and ("<" in o.reason or "n.d" in o.reason)
-            for o in outcomes):
+    if _has_censored(raw, picked, decimal):
         cautions.append(CENSORED_CAUTION)
     if caution:
         cautions.append(" ".join(str(caution).split()))
@@ -773,6 +774,13 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
     if out is not None:
         result.save(out, force=force)
     return result
+
+
+def _has_censored(raw, columns, decimal) -> bool:
+    """Whether any response cell is a non-detect or below-limit text."""
+    from .intake import _parse_values
+    return any(np.isin(_parse_values(raw.body[j], decimal)[1], _CENSORED_REASONS).any()
+               for j in columns)
 
 
 def _blank(x) -> bool:
@@ -847,13 +855,9 @@ def _tabulate(tasks, outcomes, stratified, fdr, alpha):
             table[col] = pd.Series([None] * len(table), dtype=object)
         table[col] = table[col].astype(dtype) if dtype is not object else table[col]
     # The screen across tasks: BH (or BY) over the omnibus p-values that exist.
-    q = np.full(len(table), np.nan)
-    p = table["omnibus_p"].to_numpy(dtype=float)
-    have = np.isfinite(p) & (table["status"] == "ok").to_numpy()
-    if have.any():
-        q[have] = _FDR[fdr](p[have])
-    reject = pd.array([bool(v <= alpha) if h else None for v, h in zip(q, have)],
-                      dtype="boolean")
+    p = np.where((table["status"] == "ok").to_numpy(),
+                 table["omnibus_p"].to_numpy(dtype=float), np.nan)
+    q, reject = fdr_screen(p, fdr, alpha)
     pos = table.columns.get_loc("omnibus_p") + 1
     table.insert(pos, "omnibus_q", q)
     table.insert(pos + 1, "omnibus_reject", reject)
@@ -877,6 +881,33 @@ def _tabulate(tasks, outcomes, stratified, fdr, alpha):
     merged = [f"{msg} ({', '.join(heads[:3])}{' ...' if len(heads) > 3 else ''}; "
               f"{len(heads)} task(s))" for msg, heads in seen.items()]
     return table, results, records, merged
+
+
+def fdr_screen(p, method: str = "bh", level: float = 0.05):
+    """Adjust the finite entries of ``p`` by BH or BY and screen them at ``level``.
+
+    Entries that are NaN (tasks that did not run, or had no omnibus p-value)
+    stay out of the family: their adjusted value is NaN and their decision
+    is missing (``pd.NA``).  Uses :func:`famwise.adjust.bh` /
+    :func:`famwise.adjust.by`.
+
+    Returns
+    -------
+    q : ndarray of float
+        Adjusted p-values (NaN outside the family).
+    reject : pandas BooleanArray
+        ``q <= level``, missing outside the family.
+    """
+    if method not in _FDR:
+        raise FamwiseInputError(f"fdr must be one of 'bh', 'by'; got {method!r}")
+    p = np.asarray(p, dtype=float)
+    have = np.isfinite(p)
+    q = np.full(p.shape, np.nan)
+    if have.any():
+        q[have] = _FDR[method](p[have])
+    reject = pd.array([bool(v <= level) if h else None for v, h in zip(q, have)],
+                      dtype="boolean")
+    return q, reject
 
 
 def _task_command(source, data, response, group, stratum, settings, seed, command):

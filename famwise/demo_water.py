@@ -31,14 +31,10 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-__all__ = ["STATIONS", "ANALYTES", "water_survey", "WATER_SEED", "WATER_GROUP",
-           "WATER_CAUTION"]
+__all__ = ["STATIONS", "ANALYTES", "water_survey", "WATER_SEED", "WATER_GROUP"]
 
 WATER_SEED = 20260417
 WATER_GROUP = "station"
-WATER_CAUTION = ("Invented demonstration data. For monitoring that feeds a regulatory or "
-                 "compliance decision, follow the applicable regulations and methods and have "
-                 "a qualified statistician review the analysis.")
 
 #: station -> (samples, load factor: 1 = upstream background)
 STATIONS = {
