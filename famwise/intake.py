@@ -70,21 +70,63 @@ class _Raw:
     notes: tuple[str, ...]
 
 
+_MAGIC = (
+    (b"\x1f\x8b", "is gzip-compressed; decompress it first (gunzip)"),
+    (b"PK\x03\x04", "is a zip archive (an Excel workbook is one); give a workbook the "
+                    ".xlsx suffix, or unzip the archive"),
+    (b"PAR1", "is a Parquet file; give it the .parquet suffix"),
+    (b"\xd0\xcf\x11\xe0", "is an old-style Excel (.xls) or other OLE file; save it as "
+                          ".xlsx or CSV"),
+)
+
+
+def _check_binary(data: bytes, encoding: str | None, path: str) -> None:
+    """Refuse compressed, binary and BOM-less UTF-16 files with a clear line."""
+    for magic, what in _MAGIC:
+        if data.startswith(magic):
+            raise FamwiseInputError(f"{path!r} {what}; famwise reads it as text")
+    utf8 = encoding is None or encoding.lower().replace("_", "-") in ("utf-8", "utf8",
+                                                                      "utf-8-sig")
+    nul = data.find(b"\x00")
+    if nul < 0 or not utf8:
+        return
+    head = data[:4096]
+    # ASCII text in UTF-16 puts a NUL in every other byte.
+    even, odd = head[0::2].count(0), head[1::2].count(0)
+    if max(even, odd) > 0.3 * (len(head) / 2) and min(even, odd) < 0.05 * (len(head) / 2):
+        order = "le" if odd > even else "be"
+        raise FamwiseInputError(
+            f"{path!r} looks like UTF-16 text without a byte-order mark; pass "
+            f"--encoding utf-16-{order} (encoding='utf-16-{order}')")
+    line = data.count(b"\n", 0, nul) + 1
+    raise FamwiseInputError(
+        f"{path!r} holds a NUL byte (line {line}, offset {nul}); it is a binary file or "
+        f"damaged text, not delimited text")
+
+
 def _decode(data: bytes, encoding: str | None, path: str) -> str:
     if data.startswith((b"\xff\xfe", b"\xfe\xff")):
         return data.decode("utf-16")
+    _check_binary(data, encoding, path)
     enc = encoding or "utf-8-sig"
     if enc.lower().replace("_", "-") in ("utf-8", "utf8"):
         enc = "utf-8-sig"
     try:
-        return data.decode(enc)
+        text = data.decode(enc)
     except LookupError:
         raise FamwiseInputError(f"unknown encoding {encoding!r}") from None
     except UnicodeDecodeError as exc:
         raise FamwiseInputError(
             f"{path!r} is not valid {encoding or 'UTF-8'} (byte 0x{data[exc.start]:02x} at "
-            f"offset {exc.start}); pass the file's encoding, e.g. encoding='latin-1'"
+            f"offset {exc.start}); pass the file's encoding, e.g. encoding='latin-1' "
+            f"(--encoding latin-1)"
         ) from None
+    if "\x00" in text:
+        line = text.count("\n", 0, text.index("\x00")) + 1
+        raise FamwiseInputError(
+            f"{path!r} holds a NUL character (line {line}) after decoding as {enc}; "
+            f"check the encoding")
+    return text
 
 
 def _sniff(lines: list[str], decimal: str) -> str:
@@ -103,14 +145,23 @@ def _sniff(lines: list[str], decimal: str) -> str:
     return best if best is not None else (";" if decimal == "," else ",")
 
 
-def _read_text(path: str, delimiter, decimal, encoding) -> tuple[pd.DataFrame, list[str]]:
+def _read_text(path: str, delimiter, decimal, encoding) -> tuple[pd.DataFrame, list[str], int]:
+    """Return the cells (as text), notes, and how many leading blank lines were skipped."""
     with open(path, "rb") as fh:
         data = fh.read()
     text = _decode(data, encoding, path)
     if not text.strip():
         raise FamwiseInputError(f"{path!r} is empty")
+    # Leading blank lines confuse the parser's column count: skip them and
+    # count them, so row numbers stay those of the file.
+    lines = text.splitlines(keepends=True)
+    skipped = 0
+    while skipped < len(lines) and not lines[skipped].strip():
+        skipped += 1
+    text = "".join(lines[skipped:])
     sample = [ln for ln in text.splitlines()[:50] if ln.strip()]
-    if delimiter is None:
+    detected = delimiter is None
+    if detected:
         delimiter = "\t" if path.lower().endswith((".tsv", ".tab")) else _sniff(sample, decimal)
         named = {",": "comma", ";": "semicolon", "\t": "tab", "|": "vertical bar"}[delimiter]
         notes = [f"delimiter: {named} (detected)"]
@@ -124,11 +175,39 @@ def _read_text(path: str, delimiter, decimal, encoding) -> tuple[pd.DataFrame, l
         m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", str(exc))
         if m:
             raise FamwiseInputError(
-                f"{path!r} line {m.group(2)} has {m.group(3)} fields but earlier lines have "
-                f"{m.group(1)}; check the delimiter or quote the field") from None
+                f"{path!r} line {int(m.group(2)) + skipped} has {m.group(3)} fields but "
+                f"earlier lines have {m.group(1)}; check the delimiter or quote the "
+                f"field") from None
+        m = re.search(r"EOF inside string starting at row (\d+)", str(exc))
+        if m:
+            raise FamwiseInputError(
+                f"{path!r} line {int(m.group(1)) + 1 + skipped} opens a quote (\") that is "
+                f"never closed; close or remove it") from None
         raise FamwiseInputError(f"{path!r} cannot be read as delimited text: "
                                 f"{str(exc).strip().splitlines()[0]}") from None
-    return frame, notes
+    if detected:
+        _check_mixed_delimiters(sample, delimiter, path)
+    return frame, notes, skipped
+
+
+def _check_mixed_delimiters(sample: list[str], delimiter: str, path: str) -> None:
+    """Refuse a file whose lines use different delimiters (say ';' and ',')."""
+    rows = list(csv.reader(sample, delimiter=delimiter))
+    if not rows:
+        return
+    width = len(rows[0])
+    for i, row in enumerate(rows[1:], start=1):
+        if len(row) >= width:
+            continue
+        for other in (",", ";", "\t", "|"):
+            if other == delimiter:
+                continue
+            if len(next(csv.reader([sample[i]], delimiter=other))) == width:
+                names = {",": "','", ";": "';'", "\t": "tab", "|": "'|'"}
+                raise FamwiseInputError(
+                    f"{path!r} mixes delimiters: the header uses {names[delimiter]} but a "
+                    f"line ({sample[i][:40]!r}) uses {names[other]}; use one delimiter "
+                    f"throughout")
 
 
 def _read_excel(path: str, sheet) -> tuple[pd.DataFrame, list[str]]:
@@ -156,6 +235,8 @@ def _read_excel(path: str, sheet) -> tuple[pd.DataFrame, list[str]]:
         raise FamwiseInputError(
             f"{path!r} has no sheet {sheet!r} (sheets: {', '.join(map(repr, names))}){hint}")
     frame = pd.read_excel(path, sheet_name=sheet, header=None, dtype=object)
+    if frame.size == 0 or frame.apply(lambda col: col.map(_is_blank)).all(axis=None):
+        raise FamwiseInputError(f"sheet {sheet!r} of {path!r} is empty")
     return frame, [f"sheet: {sheet!r}"]
 
 
@@ -190,10 +271,11 @@ def _load(source, *, sheet, delimiter, decimal, encoding) -> _Raw:
         body = body.reset_index(drop=True)
         body.columns = range(body.shape[1])
         return _Raw(header, body, np.arange(1, len(body) + 1), path, ())
+    skipped = 0
     if suffix in EXCEL_SUFFIXES:
         frame, notes = _read_excel(path, sheet)
     elif suffix in TEXT_SUFFIXES or suffix == "":
-        frame, notes = _read_text(path, delimiter, decimal, encoding)
+        frame, notes, skipped = _read_text(path, delimiter, decimal, encoding)
     elif suffix == ".xls":
         raise FamwiseInputError(
             f"{path!r} is an old-style .xls workbook; save it as .xlsx or CSV")
@@ -211,8 +293,10 @@ def _load(source, *, sheet, delimiter, decimal, encoding) -> _Raw:
     body = frame.iloc[h + 1:].reset_index(drop=True)
     if body.shape[0] == 0:
         raise FamwiseInputError(f"{path!r} has a header row but no data rows")
-    # Source row of body row i: frame index h + 1 + i, shown 1-based.
-    return _Raw(header, body, np.arange(h + 2, h + 2 + len(body)), path, tuple(notes))
+    # Source row of body row i: frame index h + 1 + i (after the skipped
+    # leading blank lines), shown 1-based.
+    first = h + 2 + skipped
+    return _Raw(header, body, np.arange(first, first + len(body)), path, tuple(notes))
 
 
 def _is_blank(x) -> bool:
@@ -276,6 +360,37 @@ def _parse_values(cells: pd.Series, decimal: str) -> tuple[np.ndarray, np.ndarra
     bad_nan = (reasons == "") & np.isnan(values)
     reasons[bad_nan] = "missing-response"
     return values, reasons, texts
+
+
+_DECIMAL_COMMA = re.compile(r"^[-+]?\d+,\d+$")
+_THOUSANDS = re.compile(r"^[-+]?\d{1,3}([,.' \u00a0]\d{3})+([.,]\d+)?$")
+
+
+def _number_hint(texts, decimal: str) -> str:
+    """Suggest the fix when text cells look like numbers written another way."""
+    texts = [t for t in texts if t]
+    if not texts:
+        return ""
+    half = len(texts) / 2
+    comma = decimal == "." and sum(bool(_DECIMAL_COMMA.match(t)) for t in texts) > half
+    thousands = sum(bool(_THOUSANDS.match(t)) for t in texts) > half
+    if thousands and any("," in t and "." in t for t in texts):
+        comma = False                     # 1,050.5: the comma cannot be a decimal mark
+    if thousands and comma:
+        return ("; they look like numbers with thousands separators or a decimal comma: "
+                "remove the separators (write 1050, not 1,050), or pass --decimal-comma "
+                "(decimal=',')")
+    if thousands:
+        return ("; they look like numbers with thousands separators: remove the "
+                "separators (write 1050.5, not 1,050.5)")
+    if comma:
+        return ("; they look like numbers with a decimal comma: pass --decimal-comma "
+                "(decimal=',')")
+    return ""
+
+
+#: Longest group label accepted; longer ones are nearly always a quoting error.
+MAX_LABEL = 500
 
 
 def _labels(cells: pd.Series) -> np.ndarray:
@@ -383,6 +498,7 @@ def read(source, response: str | None = None, group: str | None = None, *,
         values, labels, rows, dropped, n_read, response_name, group_name = \
             _long(raw, response, group, decimal, excluded)
         unit = "row"
+    _check_labels(labels, rows, src, unit)
     # Spelling variants among the labels that are used.
     counts = Counter(labels)
     by_key: dict[str, list[str]] = {}
@@ -435,7 +551,8 @@ def read(source, response: str | None = None, group: str | None = None, *,
     layout = Layout(values=values, codes=codes, labels=tuple(label_order),
                     rows=np.asarray(rows, dtype=np.int64), response=response_name,
                     group=group_name, source=src)
-    _validate(layout, ledger)
+    with np.errstate(over="ignore", invalid="ignore"):
+        _validate(layout, ledger)        # huge values are refused there, not warned about
     return Intake(layout, ledger)
 
 
@@ -454,7 +571,7 @@ def _long(raw: _Raw, response, group, decimal, excluded):
         shown = ", ".join(repr(t) for t in dict.fromkeys(x for x in texts if x)) or "only empty cells"
         raise FamwiseInputError(
             f"response column {rname!r} in {src!r} has no numeric values "
-            f"(it holds {shown[:80]})")
+            f"(it holds {shown[:80]}){_number_hint(texts, decimal)}")
     dropped, keep = [], np.zeros(len(values), dtype=bool)
     for i in range(len(values)):
         if raw.rows[i] in excluded:
@@ -501,10 +618,23 @@ def _wide(raw: _Raw, columns, decimal, excluded):
                 labels.append(header[j])
                 rows.append(raw.rows[i])
     if not values:
-        raise FamwiseInputError(f"the group columns of {src!r} hold no numeric values")
+        texts = [d.value for d in dropped]
+        raise FamwiseInputError(f"the group columns of {src!r} hold no numeric values"
+                                f"{_number_hint(texts, decimal)}")
     dropped.sort(key=lambda d: (d.row, use.index(header.index(d.column))))
     return (np.array(values), labels, np.array(rows), dropped,
             len(use) * len(raw.body))
+
+
+def _check_labels(labels, rows, src: str, unit: str) -> None:
+    """Refuse labels that are too long or hold a line break (a quoting error)."""
+    for lab, row in zip(labels, rows):
+        if len(lab) > MAX_LABEL or "\n" in lab or "\r" in lab:
+            what = (f"is {len(lab)} characters long" if len(lab) > MAX_LABEL
+                    else "holds a line break")
+            raise FamwiseInputError(
+                f"the group label in {unit} {int(row)} of {src!r} {what} (it starts "
+                f"{lab[:30]!r}); this usually means an unbalanced quote in the file")
 
 
 def _excluded_rows(exclude_rows, raw: _Raw) -> set:
@@ -545,3 +675,17 @@ def _validate(layout: Layout, ledger: Ledger) -> None:
         raise FamwiseInputError(
             f"all {v.size} usable values of {layout.response!r} in {src!r} equal {v[0]:g}; "
             f"there is no variation to compare")
+    span = float(np.max(v) - np.min(v))
+    if not span <= 1e150 or span < 1e-150:
+        raise FamwiseInputError(
+            f"the values of {layout.response!r} in {src!r} span "
+            f"{f'{span:g}' if np.isfinite(span) else 'more than 1.8e308'}, beyond what "
+            f"squares of double-precision numbers can hold (1e-150 to 1e150); rescale the "
+            f"unit (for example to thousands or to millionths)")
+    st = layout.stats
+    if not np.any(st.var > 0.0):
+        shown = ", ".join(f"{lab!r} = {m:g}" for lab, m in zip(layout.labels[:4], st.mean))
+        more = ", ..." if layout.k > 4 else ""
+        raise FamwiseInputError(
+            f"every group of {layout.response!r} in {src!r} is constant ({shown}{more}); "
+            f"there is no within-group variation to judge the differences against")
