@@ -210,6 +210,19 @@ def _check_mixed_delimiters(sample: list[str], delimiter: str, path: str) -> Non
                     f"throughout")
 
 
+def _text_hint(path: str) -> str:
+    """``"; it looks like delimited text ..."`` when a binary-format file is text."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(4096)
+        text = head.decode("utf-8-sig")
+    except (OSError, UnicodeDecodeError):
+        return ""
+    if "\x00" in text or not any(d in text for d in (",", ";", "\t", "|")):
+        return ""
+    return "; it looks like delimited text: give it the .csv suffix"
+
+
 def _read_excel(path: str, sheet) -> tuple[pd.DataFrame, list[str]]:
     try:
         import openpyxl
@@ -220,7 +233,7 @@ def _read_excel(path: str, sheet) -> tuple[pd.DataFrame, list[str]]:
         book = openpyxl.load_workbook(path, read_only=True, data_only=True)
     except Exception as exc:
         raise FamwiseInputError(f"{path!r} cannot be opened as an Excel workbook "
-                                f"({type(exc).__name__})") from None
+                                f"({type(exc).__name__}){_text_hint(path)}") from None
     names = book.sheetnames
     book.close()
     if sheet is None:
@@ -264,7 +277,7 @@ def _load(source, *, sheet, delimiter, decimal, encoding) -> _Raw:
                 "reading Parquet files needs pyarrow: pip install 'famwise[parquet]'") from None
         except Exception as exc:
             raise FamwiseInputError(f"{path!r} cannot be read as Parquet "
-                                    f"({type(exc).__name__})") from None
+                                    f"({type(exc).__name__}){_text_hint(path)}") from None
         if body.shape[0] == 0:
             raise FamwiseInputError(f"{path!r} has no records")
         header = [str(c) for c in body.columns]

@@ -63,20 +63,30 @@ def prepare_folder(folder: str, names: Iterable[str], force: bool = False) -> st
 
 
 def write_atomic(path: str, text: str | bytes) -> None:
-    """Write ``text`` to ``path`` through a temporary file and a rename."""
+    """Write ``text`` to ``path`` through a temporary file and a rename.
+
+    A failure to write (no space, a file-size limit, a read-only place) is
+    a :class:`FamwiseInputError` naming the file; the temporary file is
+    removed and ``path`` is left as it was.
+    """
     folder = os.path.dirname(os.path.abspath(path))
     mode = "wb" if isinstance(text, bytes) else "w"
-    fd, tmp = tempfile.mkstemp(prefix=".famwise-", suffix=".tmp", dir=folder)
+    tmp = None
     try:
+        fd, tmp = tempfile.mkstemp(prefix=".famwise-", suffix=".tmp", dir=folder)
         with os.fdopen(fd, mode, **({} if mode == "wb" else {"encoding": "utf-8",
                                                              "newline": ""})) as fh:
             fh.write(text)
             fh.flush()
             os.fsync(fh.fileno())
         os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
+    except BaseException as exc:
+        if tmp is not None:
+            try:
+                os.unlink(tmp)
+            except OSError:
+                pass
+        if isinstance(exc, OSError):
+            raise FamwiseInputError(
+                f"cannot write {path!r}: {exc.strerror or exc}") from None
         raise
