@@ -360,7 +360,7 @@ class _Task:
     index: int
     response: str
     stratum: str | None
-    frame: pd.DataFrame = field(repr=False)   # response, group, row-filled marker
+    columns: dict = field(repr=False)         # response, group, row-filled marker arrays
     rows: np.ndarray = field(repr=False)      # the source's row number of each frame row
     seed: int = 0
     folder: str = ""
@@ -421,7 +421,7 @@ def _run_task(task: _Task, source: str, group: str, notes, options: dict, render
         if quiet:
             warnings.simplefilter("ignore", FamwiseWarning)
         try:
-            intake = read(task.frame, task.response, group,
+            intake = read(pd.DataFrame(task.columns), task.response, group,
                           merge_spellings=options["merge_spellings"])
             extra = [f"stratum: {options['by']} = {task.stratum!r}"] \
                 if task.stratum is not None else []
@@ -676,7 +676,9 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
     # The frame every task cuts its columns from (cells as read, so the task's
     # own intake parses them and accounts for every row).
     body = raw.body
-    filled = np.where(body.apply(lambda col: col.map(_blank)).all(axis=1).to_numpy(), "", "x")
+    cells = body.to_numpy(dtype=object)
+    empty = pd.isna(body).to_numpy() | (np.char.strip(cells.astype(str)) == "")
+    filled = np.where(empty.all(axis=1), "", "x").astype(object)
     if b is not None:
         labels = np.array([_stratum_label(x) for x in body[b].to_numpy(dtype=object)],
                           dtype=object)
@@ -699,14 +701,13 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
                     resamples=resamples, policy=pol, crosscheck=bool(crosscheck),
                     merge_spellings=bool(merge_spellings), by=header[b] if b is not None else None)
     tasks = []
+    group_cells = body[g].to_numpy(dtype=object)
     for j, name in zip(picked, names):
         for s, rows in zip(strata, members):
             index = len(tasks)
-            frame = pd.DataFrame({name: body[j].to_numpy(dtype=object)[rows],
-                                  header[g]: body[g].to_numpy(dtype=object)[rows],
-                                  _FILLED: filled[rows]})
-            if pd.api.types.is_numeric_dtype(body[j].dtype):
-                frame[name] = body[j].to_numpy()[rows]
+            values = body[j].to_numpy() if pd.api.types.is_numeric_dtype(body[j].dtype) \
+                else body[j].to_numpy(dtype=object)
+            frame = {name: values[rows], header[g]: group_cells[rows], _FILLED: filled[rows]}
             folder = top[name] + ("" if s is None else "/" + sub_names[s])
             seed_i = task_seed(root, index)
             tasks.append(_Task(index, name, s, frame, raw.rows[rows], seed_i, folder,
@@ -781,14 +782,6 @@ def _has_censored(raw, columns, decimal) -> bool:
     from .intake import _parse_values
     return any(np.isin(_parse_values(raw.body[j], decimal)[1], _CENSORED_REASONS).any()
                for j in columns)
-
-
-def _blank(x) -> bool:
-    if x is None or x is pd.NA:
-        return True
-    if isinstance(x, float) and np.isnan(x):
-        return True
-    return isinstance(x, str) and x.strip() == ""
 
 
 def _entropy(root):
@@ -867,7 +860,7 @@ def _tabulate(tasks, outcomes, stratified, fdr, alpha):
                 "comparisons", "declared_different", "smallest_p_adjusted", "unsettled",
                 "crosscheck_agree", "seed", "folder", "reason"])
     table = table[order]
-    for rec, qi, ri, (_, r) in zip(records, q, reject, table.iterrows()):
+    for rec, qi, ri, r in zip(records, q, reject, table.to_dict("records")):
         rec.update(omnibus=r["omnibus"], omnibus_p=r["omnibus_p"], omnibus_q=qi,
                    omnibus_reject=None if ri is pd.NA else bool(ri),
                    declared_different=r["declared_different"],
