@@ -13,13 +13,14 @@ over the common factor for Dunnett's product correlation) or a closed form
 
 1. validate arguments once, up front (``FamwiseInputError``, one line);
 2. tabulate ``log F`` and ``log(1 - F)`` once per shape parameter (``k``,
-   ``lam``, ``m``) on fixed Gauss-Legendre node sets, stored as piecewise
-   Chebyshev series (cached);
-3. integrate over ``s`` for every element at once in one compiled loop, on
-   the variable ``log s`` with a fixed number of Gauss-Legendre panels placed
-   around the peak of each element's integrand (no adaptive quadrature per
-   element, so an array of distinct ``df`` costs the same as one ``df``);
-4. for quantiles, a vectorised safeguarded secant/bisection iteration.
+   ``lam``, ``m``) as piecewise Chebyshev series (cached; this module);
+3. integrate over ``s`` for every element at once in one compiled loop
+   (:mod:`famwise._mixture`: Gauss-Legendre panels on ``log s`` placed
+   around the peak of each element's integrand, so an array of distinct
+   ``df`` costs the same as one ``df``);
+4. for quantiles, safeguarded Newton steps on the log of the smaller tail
+   with the density from the same integral, started from the ``df = inf``
+   quantile mapped through Student's t (:func:`famwise._mixture._quantile`).
 
 The smaller of the two tails is always integrated directly, so upper-tail
 probabilities keep their relative accuracy far out (no ``1 - cdf``).
@@ -34,6 +35,7 @@ import numpy as np
 from numba import njit
 from scipy import special
 
+from ._mixture import _GL_INNER_W, _GL_INNER_X, _Table, _evaluate, _panel_rule, _quantile
 from .errors import FamwiseInputError
 
 __all__ = [
@@ -48,310 +50,6 @@ __all__ = [
     "contrast_se_pooled",
     "contrast_se_welch",
 ]
-
-# ---------------------------------------------------------------------------
-# Fixed rules
-# ---------------------------------------------------------------------------
-
-_CHEB_N = 16                      # Chebyshev points per table panel
-_GL_OUTER_X, _GL_OUTER_W = np.polynomial.legendre.leggauss(12)   # outer panels
-_GL_INNER_X, _GL_INNER_W = np.polynomial.legendre.leggauss(12)   # inner panels
-_LOG_HALF = math.log(0.5)
-
-
-def _panel_rule(lo, hi, width):
-    """Composite Gauss-Legendre nodes and weights on [lo, hi], panels of ~width."""
-    npan = max(1, int(math.ceil((hi - lo) / width)))
-    edges = np.linspace(lo, hi, npan + 1)
-    half = 0.5 * np.diff(edges)
-    mid = 0.5 * (edges[1:] + edges[:-1])
-    x = (mid[:, None] + half[:, None] * _GL_INNER_X[None, :]).ravel()
-    w = (half[:, None] * _GL_INNER_W[None, :]).ravel()
-    return x, w
-
-
-class _Table:
-    """``log F`` (upper) and ``log(1-F)`` (lower) as piecewise Chebyshev series.
-
-    The upper function is tabulated on ``w`` in ``[u0, u1]``; the lower one on
-    ``x = log w`` (``lower_log=True``, two-sided quantities that behave like a
-    power of ``w`` near 0) or on ``w`` itself.  ``meta`` packs the ranges and
-    the tail rules read by the compiled evaluator ``_log_f``.
-    """
-
-    def __init__(self, log_upper, log_lower, u_range, u_width, l_range, l_width,
-                 lower_log, upper_tail, lower_tail):
-        self.coef_u, u0, uw = _cheb_fit(log_upper, u_range, u_width)
-        if log_lower is None:                  # lower tail from 1 - upper
-            self.coef_l, l0, lw, mode = np.zeros((1, _CHEB_N)), 0.0, 1.0, 2.0
-        else:
-            lo_fun = (lambda x: log_lower(np.exp(x))) if lower_log else log_lower
-            self.coef_l, l0, lw = _cheb_fit(lo_fun, l_range, l_width)
-            mode = 1.0 if lower_log else 0.0
-        self.meta = np.array([u0, uw, self.coef_u.shape[0], upper_tail,
-                              mode, l0, lw, self.coef_l.shape[0], lower_tail])
-
-
-def _cheb_fit(fun, rng, width):
-    """Chebyshev coefficients of ``fun`` on panels of ``width`` covering ``rng``."""
-    lo, hi = rng
-    npan = max(1, int(math.ceil((hi - lo) / width - 1e-9)))
-    width = (hi - lo) / npan
-    j = np.arange(_CHEB_N)
-    y = np.cos(np.pi * (j + 0.5) / _CHEB_N)              # first-kind points
-    x = lo + width * (np.arange(npan)[:, None] + 0.5 * (y[None, :] + 1.0))
-    f = np.asarray(fun(x.ravel()), dtype=float).reshape(npan, _CHEB_N)
-    if not np.all(np.isfinite(f)):
-        raise RuntimeError("famwise.distributions: non-finite table value")
-    cosm = np.cos(np.pi * np.outer(j, j + 0.5) / _CHEB_N)  # (m, j)
-    coef = (2.0 / _CHEB_N) * f @ cosm.T
-    coef[:, 0] *= 0.5
-    return np.ascontiguousarray(coef), lo, width
-
-
-# ---------------------------------------------------------------------------
-# Compiled evaluation: tables and the outer integral over the scale S
-# ---------------------------------------------------------------------------
-
-@njit(cache=True, nogil=True, inline="always")
-def _cheb(coef, x0, width, x):
-    npan = coef.shape[0]
-    u = (x - x0) / width
-    i = int(math.floor(u))
-    if i < 0:
-        i = 0
-    elif i >= npan:
-        i = npan - 1
-    y = 2.0 * (u - i) - 1.0
-    b1 = 0.0
-    b2 = 0.0
-    for j in range(coef.shape[1] - 1, 0, -1):
-        b0 = 2.0 * y * b1 - b2 + coef[i, j]
-        b2 = b1
-        b1 = b0
-    return y * b1 - b2 + coef[i, 0]
-
-
-@njit(cache=True, nogil=True, inline="always")
-def _log_upper(cu, meta, w):
-    u0 = meta[0]
-    uw = meta[1]
-    u1 = u0 + uw * meta[2]
-    if w >= u1:
-        # Gaussian-type tail beyond the table (Mills ratio):
-        # log F(w) ~ log F(u1) - a (w^2 - u1^2) - log(w / u1)
-        return _cheb(cu, u0, uw, u1) - meta[3] * (w * w - u1 * u1) - math.log(w / u1)
-    if w < u0:
-        return 0.0
-    return _cheb(cu, u0, uw, w)
-
-
-@njit(cache=True, nogil=True, inline="always")
-def _log1mexp(a):
-    """log(1 - exp(a)) for a <= 0, accurately."""
-    if a > -0.6931471805599453:
-        return math.log(-math.expm1(a))
-    return math.log1p(-math.exp(a))
-
-
-@njit(cache=True, nogil=True, inline="always")
-def _log_lower(cu, cl, meta, w):
-    l0 = meta[5]
-    lw = meta[6]
-    l1 = l0 + lw * meta[7]
-    if meta[4] > 1.5:                      # no lower table
-        if w <= 0.0:
-            return -np.inf
-        return _log1mexp(min(_log_upper(cu, meta, w), -1e-300))
-    if meta[4] > 0.5:                      # lower table on log w
-        if w <= 0.0:
-            return -np.inf
-        x = math.log(w)
-        if x < l0:                         # power law F(w) ~ c w^slope near 0
-            return _cheb(cl, l0, lw, l0) + meta[8] * (x - l0)
-        if x >= l1:
-            return _log1mexp(_log_upper(cu, meta, w))
-        return _cheb(cl, l0, lw, x)
-    if w < l0:                             # Gaussian-type left tail
-        return _cheb(cl, l0, lw, l0) - meta[8] * (w * w - l0 * l0)
-    if w >= l1:
-        return _log1mexp(_log_upper(cu, meta, w))
-    return _cheb(cl, l0, lw, w)
-
-
-@njit(cache=True, nogil=True, inline="always")
-def _log_f(cu, cl, meta, w, upper):
-    if upper:
-        return _log_upper(cu, meta, w)
-    return _log_lower(cu, cl, meta, w)
-
-
-@njit(cache=True, nogil=True)
-def _chi_const(nu):
-    """log of 2 (nu/2)^(nu/2) e^(-nu/2) / Gamma(nu/2): density of log S at 0."""
-    x = 0.5 * nu
-    if x > 40.0:                           # Stirling series, avoids cancellation
-        r = 1.0 / x
-        return (math.log(2.0) + 0.5 * math.log(x) - 0.5 * math.log(2.0 * math.pi)
-                - r * (1.0 / 12.0 - r * r * (1.0 / 360.0 - r * r / 1260.0)))
-    return math.log(2.0) + x * math.log(x) - x - math.lgamma(x)
-
-
-@njit(cache=True, nogil=True)
-def _chi_range(nu, depth):
-    """t-interval where nu (t - expm1(2t)/2) >= -depth (log S = t)."""
-    # f(t) = nu (t - expm1(2t)/2) + depth is concave; Newton from outside the
-    # roots converges monotonically.
-    tl = -depth / nu - 1.0
-    for _ in range(60):
-        f = nu * (tl - 0.5 * math.expm1(2.0 * tl)) + depth
-        d = nu * (1.0 - math.exp(2.0 * tl))
-        step = f / d
-        tl -= step
-        if abs(step) < 1e-12 * (1.0 + abs(tl)):
-            break
-    tr = 0.5 * math.log1p(4.0 * depth / nu) + 1.0
-    for _ in range(60):
-        f = nu * (tr - 0.5 * math.expm1(2.0 * tr)) + depth
-        d = nu * (1.0 - math.exp(2.0 * tr))
-        step = f / d
-        tr -= step
-        if abs(step) < 1e-12 * (1.0 + abs(tr)):
-            break
-    return tl, tr
-
-
-@njit(cache=True, nogil=True, inline="always")
-def _psi(cu, cl, meta, q, nu, t, upper):
-    em = math.expm1(t)                     # one transcendental: e^t and expm1(2t)
-    return nu * (t - 0.5 * em * (em + 2.0)) + _log_f(cu, cl, meta, q * (1.0 + em), upper)
-
-
-@njit(cache=True, nogil=True)
-def _outer_one(cu, cl, meta, q, nu, upper, gx, gw, tl, tr, psis, ratio, hmul):
-    """log of  integral f_nu(s) F(q s) ds / const  for one element (F upper or lower)."""
-    m = psis.shape[0]
-    dt = (tr - tl) / (m - 1)
-    best = -np.inf
-    ib = 0
-    for i in range(m):
-        p = _psi(cu, cl, meta, q, nu, tl + i * dt, upper)
-        psis[i] = p
-        if p > best:
-            best = p
-            ib = i
-    if best == -np.inf:
-        return -np.inf
-    # refine the peak location twice on finer uniform grids
-    tc = tl + ib * dt
-    step = dt
-    pc = best
-    for rnd in range(2):
-        step = step / 4.0
-        t0 = tc
-        for j in range(-4, 5):
-            if j == 0 or (rnd == 1 and abs(j) > 2):
-                continue
-            t = t0 + j * step
-            p = _psi(cu, cl, meta, q, nu, t, upper)
-            if p > pc:
-                pc = p
-                tc = t
-    pm = _psi(cu, cl, meta, q, nu, tc - step, upper)
-    pp = _psi(cu, cl, meta, q, nu, tc + step, upper)
-    curv = (2.0 * pc - pm - pp) / (step * step)
-    h0 = dt
-    if curv > 0.0:
-        h0 = 1.0 / math.sqrt(curv)
-    h0 = min(max(hmul * h0, 1e-4 * dt), dt)
-    # region where the integrand exceeds exp(-40) of its peak (coarse grid)
-    thr = pc - 40.0
-    i1 = 0
-    while i1 < m and psis[i1] < thr:
-        i1 += 1
-    i2 = m - 1
-    while i2 >= 0 and psis[i2] < thr:
-        i2 -= 1
-    a = tl + max(i1 - 1, 0) * dt
-    b = tl + min(i2 + 1, m - 1) * dt
-    a = min(a, tc - h0)
-    b = max(b, tc + h0)
-    # geometric panels h0, 2h0, 4h0, ... outward from the peak, n-point GL each
-    total = 0.0
-    for side in range(2):
-        lo = tc
-        width = h0
-        while True:
-            if side == 0:
-                hi = lo
-                lo2 = max(hi - width, a)
-                l, r = lo2, hi
-            else:
-                l = lo
-                r = min(lo + width, b)
-            half = 0.5 * (r - l)
-            mid = 0.5 * (r + l)
-            if half > 0.0:
-                acc = 0.0
-                for j in range(gx.shape[0]):
-                    acc += gw[j] * math.exp(_psi(cu, cl, meta, q, nu, mid + half * gx[j], upper) - pc)
-                total += half * acc
-            if side == 0:
-                lo = l
-                if l <= a:
-                    break
-            else:
-                lo = r
-                if r >= b:
-                    break
-            width *= ratio
-    if total <= 0.0:
-        return -np.inf
-    return pc + math.log(total)
-
-
-@njit(cache=True, nogil=True)
-def _outer(cu, cl, meta, q, nu, gx, gw, sf, cdf, ratio=2.0, hmul=1.0, m=24):
-    """Fill sf and cdf for arrays q, nu (nu may be inf); the smaller tail is integrated."""
-    psis = np.empty(m)
-    nu_prev = np.nan
-    tl = tr = c0 = 0.0
-    for i in range(q.shape[0]):
-        qi = q[i]
-        nui = nu[i]
-        if qi != qi or nui != nui:
-            sf[i] = np.nan
-            cdf[i] = np.nan
-            continue
-        # choose the tail: the conditional probability at s = 1 is a good proxy
-        lu = _log_upper(cu, meta, qi)
-        upper = lu < _LOG_HALF or meta[4] > 1.5     # no lower table: always the upper tail
-        if nui == np.inf:
-            lp = lu if upper else _log_lower(cu, cl, meta, qi)
-        else:
-            if nui != nu_prev:
-                tl, tr = _chi_range(nui, 50.0)
-                c0 = _chi_const(nui)
-                nu_prev = nui
-            lp = c0 + _outer_one(cu, cl, meta, qi, nui, upper, gx, gw, tl, tr, psis, ratio, hmul)
-        p = min(math.exp(lp), 1.0)
-        if upper:
-            sf[i] = p
-            cdf[i] = 1.0 - p
-        else:
-            cdf[i] = p
-            sf[i] = 1.0 - p
-
-
-def _evaluate(table, q, nu):
-    """sf and cdf of the studentized family ``table`` at flattened q, nu."""
-    q = np.ascontiguousarray(q, dtype=float).ravel()
-    nu = np.ascontiguousarray(nu, dtype=float).ravel()
-    sf = np.empty(q.shape)
-    cdf = np.empty(q.shape)
-    _outer(table.coef_u, table.coef_l, table.meta, q, nu, _GL_OUTER_X, _GL_OUTER_W, sf, cdf)
-    return sf, cdf
-
 
 # ---------------------------------------------------------------------------
 # Conditional probabilities (known scale) and their tables
@@ -453,34 +151,139 @@ def _log_ndtr_scalar(x):
 
 
 @njit(cache=True, nogil=True)
-def _dunnett_logp(w, u, lam, sig, mult, two_sided):
-    """S[a, b] = sum_i mult_i log P_i(u_b, w_a): log P(all |Z_i| < w | u) (or Z_i < w)."""
-    out = np.zeros((w.shape[0], u.shape[0]))
+def _dunnett_breaks(wa, lam, sig, two_sided, h):
+    """Panel edges in u for one w: the fixed grid plus graded panels at each step.
+
+    Base grid of spacing ``h`` on [0, 9] (two-sided) or [-9, 9], continued to
+    ``+-(|w| + 5)`` where the upper tail's mass sits (near ``u = lam w``;
+    for ``lam -> 1`` the upper-tail integrand is ``phi(u)`` beyond
+    ``u = w / lam``).  Where a factor's transition ``u = w / lam_i`` has
+    width ``s_i = sig_i / lam_i`` below ``h`` (``lam_i`` near 1), edges
+    ``c +- s_i 2^j`` resolve the near-step: GL panels of one ``s_i`` across
+    it, doubling outward to ``h``.
+    """
+    reach = max(9.0, abs(wa) + 5.0)
+    lo = 0.0 if two_sided else -reach
+    start = 0.0 if two_sided else -9.0
+    nb = int(math.ceil((reach - lo) / h)) + 3
+    nref = 0
+    for i in range(lam.shape[0]):
+        if lam[i] > 0.0 and sig[i] < h * lam[i]:
+            nref += 2 * (int(math.log2(h * lam[i] / sig[i])) + 2) + 1
+    edges = np.empty(nb + nref)
+    n = 0
+    j = 0
+    while True:                                  # downward from the grid's start
+        x = start - j * h
+        if x < lo:
+            break
+        edges[n] = x
+        n += 1
+        j += 1
+    j = 1
+    while True:
+        x = start + j * h
+        if x >= reach:
+            break
+        edges[n] = x
+        n += 1
+        j += 1
+    edges[n] = reach
+    n += 1
+    if lo < start and edges[n - 1] != lo:
+        edges[n] = lo
+        n += 1
+    for i in range(lam.shape[0]):
+        if not (lam[i] > 0.0 and sig[i] < h * lam[i]):
+            continue
+        s = sig[i] / lam[i]
+        c = wa / lam[i]
+        if lo <= c <= reach:
+            edges[n] = c
+            n += 1
+        d = s
+        while d < h:
+            for x in (c - d, c + d):
+                if lo < x < reach:
+                    edges[n] = x
+                    n += 1
+            d *= 2.0
+    e = np.sort(edges[:n])
+    keep = np.empty(n, np.bool_)
+    keep[0] = True
+    for i in range(1, n):
+        keep[i] = e[i] > e[i - 1]
+    return e[keep]
+
+
+@njit(cache=True, nogil=True)
+def _dunnett_log_p(wa, u, lam, sig, mult, two_sided):
+    """sum_i mult_i log P_i(u, w): log P(all |Z_i| < w | u) (or all Z_i < w)."""
+    acc = 0.0
+    for i in range(lam.shape[0]):
+        c = lam[i] * u
+        hi = (wa - c) / sig[i]
+        if not two_sided:
+            acc += mult[i] * _log_ndtr_scalar(hi)
+            continue
+        lo = (-wa - c) / sig[i]
+        qout = 0.5 * math.erfc(-lo / 1.4142135623730951) + 0.5 * math.erfc(hi / 1.4142135623730951)
+        if qout < 0.5:
+            acc += mult[i] * math.log1p(-qout)
+        else:
+            if lo + hi <= 0.0:
+                mass = 0.5 * (math.erfc(-hi / 1.4142135623730951) - math.erfc(-lo / 1.4142135623730951))
+            else:
+                mass = 0.5 * (math.erfc(lo / 1.4142135623730951) - math.erfc(hi / 1.4142135623730951))
+            if mass <= 0.0:
+                return -np.inf
+            acc += mult[i] * math.log(mass)
+    return acc
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _lse_add(m, s, x):
+    """Streaming log-sum-exp: (max, scaled sum) after adding exp(x)."""
+    if x == -np.inf:
+        return m, s
+    if x > m:
+        return x, s * math.exp(m - x) + 1.0
+    return m, s + math.exp(x - m)
+
+
+@njit(cache=True, nogil=True)
+def _dunnett_log_tails(w, lam, sig, mult, two_sided, h, gx, gw, upper, lower):
+    """log P(max_i |Z_i| >= w) and log P(max_i |Z_i| < w) (or max_i Z_i), per w.
+
+    ``int phi(u) g(u) du`` over the common factor on the edges of
+    _dunnett_breaks, 12-point Gauss-Legendre per panel; the two-sided
+    integrand is even in u, so only u >= 0 is integrated (weight 2).
+    """
+    lw2 = math.log(2.0) if two_sided else 0.0
     for a in range(w.shape[0]):
         wa = w[a]
-        for b in range(u.shape[0]):
-            acc = 0.0
-            for i in range(lam.shape[0]):
-                c = lam[i] * u[b]
-                hi = (wa - c) / sig[i]
-                if not two_sided:
-                    acc += mult[i] * _log_ndtr_scalar(hi)
-                    continue
-                lo = (-wa - c) / sig[i]
-                qout = 0.5 * math.erfc(-lo / 1.4142135623730951) + 0.5 * math.erfc(hi / 1.4142135623730951)
-                if qout < 0.5:
-                    acc += mult[i] * math.log1p(-qout)
-                else:
-                    if lo + hi <= 0.0:
-                        mass = 0.5 * (math.erfc(-hi / 1.4142135623730951) - math.erfc(-lo / 1.4142135623730951))
-                    else:
-                        mass = 0.5 * (math.erfc(lo / 1.4142135623730951) - math.erfc(hi / 1.4142135623730951))
-                    if mass <= 0.0:
-                        acc = -np.inf
-                        break
-                    acc += mult[i] * math.log(mass)
-            out[a, b] = acc
-    return out
+        e = _dunnett_breaks(wa, lam, sig, two_sided, h)
+        mu, su, ml, sl = -np.inf, 0.0, -np.inf, 0.0
+        for k in range(e.shape[0] - 1):
+            half = 0.5 * (e[k + 1] - e[k])
+            mid = 0.5 * (e[k + 1] + e[k])
+            for j in range(gx.shape[0]):
+                u = mid + half * gx[j]
+                lwt = math.log(half * gw[j]) + lw2 - 0.5 * u * u - _LOG_SQRT_2PI
+                s = _dunnett_log_p(wa, u, lam, sig, mult, two_sided)
+                ml, sl = _lse_add(ml, sl, s + lwt)
+                if s < 0.0:
+                    ml_u = _log1mexp_scalar(s)
+                    mu, su = _lse_add(mu, su, ml_u + lwt)
+        upper[a] = mu + math.log(su) if su > 0.0 else -np.inf
+        lower[a] = ml + math.log(sl) if sl > 0.0 else -np.inf
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _log1mexp_scalar(a):
+    if a > -0.6931471805599453:
+        return math.log(-math.expm1(a))
+    return math.log1p(-math.exp(a))
 
 
 @functools.lru_cache(maxsize=32)
@@ -490,38 +293,31 @@ def _dunnett_table(lam_key, mult_key, two_sided):
     Conditional on the common factor u ~ N(0,1) the Z_i are independent,
     Z_i = lam_i u + sqrt(1 - lam_i^2) e_i (Dunnett 1955, section 2), so
     ``P(all |Z_i| < w) = int phi(u) prod_i [Phi((w - lam_i u)/sig_i)
-    - Phi((-w - lam_i u)/sig_i)] du``.  The two-sided integrand is even in
-    ``u``, so only ``u >= 0`` is integrated.
+    - Phi((-w - lam_i u)/sig_i)] du``.  As ``lam_i -> 1`` each factor tends
+    to a step at ``u = w / lam_i`` of width ``sig_i / lam_i``, resolved by
+    graded panels (:func:`_dunnett_breaks`), so any ``lam`` in [0, 1) works.
     """
     lam = np.array(lam_key, float)
     mult = np.array(mult_key, float)
-    sig = np.sqrt(1.0 - lam * lam)
+    sig = np.sqrt((1.0 - lam) * (1.0 + lam))          # no cancellation near lam = 1
     ratio = np.min(sig / np.maximum(lam, 1e-300))
     hu = float(np.clip(ratio, 0.2, 1.0))
-    if two_sided:
-        u, wu = _panel_rule(0.0, 9.0, hu)
-        wu = 2.0 * wu
-    else:
-        u, wu = _panel_rule(-9.0, 9.0, hu)
-    logwu = np.log(wu) - 0.5 * u * u - _LOG_SQRT_2PI
+    span = 9.0 if two_sided else 18.0                 # the [0, 9] or [-9, 9] grid
+    h = span / max(1, int(math.ceil(span / hu)))
 
-    def log_p(w):
-        return _dunnett_logp(np.ascontiguousarray(w, dtype=float), u, lam, sig, mult, two_sided)
-
-    def log_upper(w):
-        s = log_p(w)
-        with np.errstate(divide="ignore"):
-            lt = np.where(s > -0.6931471805599453, np.log(-np.expm1(s)), np.log1p(-np.exp(s)))
-        return _logsum(lt, logwu[None, :])
-
-    def log_lower(w):
-        return _logsum(log_p(w), logwu[None, :])
+    def log_tails(w):
+        w = np.array(w, dtype=np.float64, order="C", copy=True).ravel()
+        up, lo = np.empty(w.shape), np.empty(w.shape)
+        _dunnett_log_tails(w, lam, sig, mult, two_sided, h, _GL_INNER_X, _GL_INNER_W, up, lo)
+        return up, lo
 
     top = 12.0 + 0.5 * math.log(mult.sum())
     if two_sided:
         # the lower tail (small t) is left to 1 - upper: absolute accuracy suffices there
-        return _Table(log_upper, None, (0.0, top), 1.0, None, None, True, 0.5, 0.0)
-    return _Table(log_upper, log_lower, (-top, top), 1.0, (-top, top), 1.0, False, 0.5, 0.5)
+        return _Table(lambda w: log_tails(w)[0], None, (0.0, top), 1.0, None, None, True,
+                      0.5, 0.0)
+    return _Table(lambda w: log_tails(w)[0], lambda w: log_tails(w)[1], (-top, top), 1.0,
+                  (-top, top), 1.0, False, 0.5, 0.5)
 
 
 # ---------------------------------------------------------------------------
@@ -588,23 +384,21 @@ def _check_alternative(alternative):
 # Driver: broadcast, group by the shape parameter, evaluate
 # ---------------------------------------------------------------------------
 
-def _by_shape(table_of, x, shape_par, df, two_sided=True):
-    """sf and cdf of arrays x (broadcast with shape_par and df), grouped by shape_par."""
+def _by_shape(table_of, x, shape_par, df, two_sided=True, density=False):
+    """sf and cdf (and density) of arrays x broadcast with shape_par and df, grouped by shape_par."""
     x, shape_par, df = np.broadcast_arrays(x, shape_par, df)
     out_shape = x.shape
     xf, kf, df_f = x.ravel(), shape_par.ravel(), df.ravel()
-    sf = np.empty(xf.shape)
-    cdf = np.empty(xf.shape)
+    out = [np.empty(xf.shape) for _ in range(3 if density else 2)]
     for kv in np.unique(kf):
         idx = np.nonzero(kf == kv)[0]
-        s, c = _evaluate(table_of(int(kv)), xf[idx], df_f[idx])
-        sf[idx] = s
-        cdf[idx] = c
+        for o, r in zip(out, _evaluate(table_of(int(kv)), xf[idx], df_f[idx], density)):
+            o[idx] = r
     if two_sided:
         low = xf <= 0.0
-        sf[low] = 1.0
-        cdf[low] = 0.0
-    return sf.reshape(out_shape), cdf.reshape(out_shape)
+        for o, v in zip(out, (1.0, 0.0, 0.0)):
+            o[low] = v
+    return tuple(o.reshape(out_shape) for o in out)
 
 
 def _srange(q, k, df):
@@ -614,81 +408,6 @@ def _srange(q, k, df):
     return _by_shape(_range_table, q, k, df)
 
 
-def _solve_increasing(g, lo, hi, rtol=1e-13, maxiter=100):
-    """Roots of increasing functions g(x, idx) -> values for elements idx, vectorised.
-
-    Brackets by expansion, then the Illinois variant of regula falsi with a
-    bisection step whenever the bracket fails to shrink by half (so the
-    iteration never stalls); converges to ``rtol`` relative in x.
-    """
-    lo = np.array(lo, dtype=float)
-    hi = np.array(hi, dtype=float)
-    n = lo.size
-    all_idx = np.arange(n)
-    glo = g(lo, all_idx)
-    ghi = g(hi, all_idx)
-    for _ in range(200):                       # expand the bracket
-        up = ghi < 0
-        down = glo > 0
-        if not (up.any() or down.any()):
-            break
-        if up.any():
-            i = np.nonzero(up)[0]
-            width = hi[i] - lo[i]
-            lo[i], glo[i] = hi[i], ghi[i]
-            hi[i] = hi[i] + 2.0 * width
-            ghi[i] = g(hi[i], i)
-        if down.any():
-            i = np.nonzero(down)[0]
-            width = hi[i] - lo[i]
-            hi[i], ghi[i] = lo[i], glo[i]
-            lo[i] = lo[i] - 2.0 * width if np.any(lo[i] <= 0) else lo[i] / 4.0
-            glo[i] = g(lo[i], i)
-    x = 0.5 * (lo + hi)
-    side = np.zeros(n)
-    old_width = hi - lo
-    active = np.ones(n, bool)
-    for _ in range(maxiter):
-        i = np.nonzero(active)[0]
-        if i.size == 0:
-            break
-        a, b, ga, gb = lo[i], hi[i], glo[i], ghi[i]
-        with np.errstate(invalid="ignore", divide="ignore"):
-            xs = b - gb * (b - a) / (gb - ga)
-        width = b - a
-        bisect = ~np.isfinite(xs) | (xs <= a) | (xs >= b) | (width > 0.5 * old_width[i])
-        xs = np.where(bisect, 0.5 * (a + b), xs)
-        old_width[i] = width
-        gx = g(xs, i)
-        x[i] = xs
-        neg = gx < 0
-        # update the bracket; Illinois: halve the retained end's value
-        lo[i] = np.where(neg, xs, a)
-        glo[i] = np.where(neg, gx, np.where(side[i] == 1, 0.5 * ga, ga))
-        hi[i] = np.where(neg, b, xs)
-        ghi[i] = np.where(neg, np.where(side[i] == -1, 0.5 * gb, gb), gx)
-        side[i] = np.where(neg, -1, 1)
-        done = (gx == 0) | (hi[i] - lo[i] <= rtol * np.maximum(np.abs(xs), 1e-300))
-        active[i[done]] = False
-    return x
-
-
-def _ppf_tail(fun, p_lower, x0_lo, x0_hi):
-    """Quantile x with P(X <= x) = p_lower for a distribution given by fun(x, idx) -> (sf, cdf).
-
-    The smaller tail is matched on the log scale, which is close to linear.
-    """
-    p_lower = np.asarray(p_lower, float)
-    use_upper = p_lower > 0.5
-    target = np.log(np.where(use_upper, 1.0 - p_lower, p_lower))
-
-    def g(x, idx):
-        sf, cdf = fun(x, idx)
-        with np.errstate(divide="ignore"):
-            return np.where(use_upper[idx], target[idx] - np.log(sf), np.log(cdf) - target[idx])
-
-    return _solve_increasing(g, np.broadcast_to(x0_lo, p_lower.shape),
-                             np.broadcast_to(x0_hi, p_lower.shape))
 
 
 # ---------------------------------------------------------------------------
@@ -806,8 +525,10 @@ def srange_ppf(p, k, df):
 
     Notes
     -----
-    Safeguarded regula falsi (Illinois) with bisection on the logarithm of
-    the smaller tail, vectorised over all elements.
+    Safeguarded Newton iteration on the logarithm of the smaller tail, with
+    the density from the same scale-mixture integral, vectorised over all
+    elements: a few steps at ``df = inf`` (tables only), then about four at
+    each element's df from the start mapped through Student's t.
 
     References
     ----------
@@ -825,14 +546,16 @@ def srange_ppf(p, k, df):
     p = _check_prob("p", p)
     k = _check_int("k", k, 2)
     df = _check_df(df)
-    p, k, df = np.broadcast_arrays(p, k, df)
-    shape = p.shape
-    p, k, df = p.ravel(), k.ravel(), df.ravel()
+    shape = np.broadcast_shapes(p.shape, k.shape, df.shape)
+    p, k, df = (np.array(a, dtype=float).ravel() for a in np.broadcast_arrays(p, k, df))
 
-    def fun(x, idx):
-        return _by_shape(_range_table, x, k[idx], df[idx])
+    def fun(x, idx, nu):
+        return _by_shape(_range_table, x, k[idx], nu, density=True)
 
-    return _ppf_tail(fun, p, 1.0, 4.0).reshape(shape)
+    # start at df = inf from the Sidak-type normal value for the k (k-1)/2 pairs
+    pairs = k * (k - 1) / 2
+    x0 = _SQRT2 * special.ndtri(1.0 - 0.5 * -np.expm1(np.log(p) / pairs))
+    return _quantile(fun, p, df, np.maximum(x0, 0.1), _SQRT2)[0].reshape(shape)
 
 
 # ---------------------------------------------------------------------------
@@ -952,21 +675,28 @@ def dunnett_ppf(conf, lam, df, alternative="two-sided"):
     2.3208
     """
     conf = _check_prob("conf", conf)
-    sf0, _, table = _dunnett_eval(np.ones(1), lam, df, alternative)
+    _, _, table = _dunnett_eval(np.ones(1), lam, df, alternative)
     df = float(df)
     two_sided = alternative == "two-sided"
     shape = conf.shape
-    conf = conf.ravel()
+    conf = np.array(conf, dtype=float).ravel()
+    p = np.asarray(lam).size
 
-    def fun(x, idx):
-        s, c = _evaluate(table, x, np.full(x.shape, df))
+    def fun(x, idx, nu):
+        s, c, d = _evaluate(table, x, nu, density=True)
         if two_sided:
-            s = np.where(x <= 0, 1.0, s)
-            c = np.where(x <= 0, 0.0, c)
-        return s, c
+            low = x <= 0
+            s[low], c[low], d[low] = 1.0, 0.0, 0.0
+        return s, c, d
 
-    lo = 1.0 if two_sided else -1.0
-    return _ppf_tail(fun, conf, lo, 3.0).reshape(shape)
+    # start at df = inf from the Sidak (two-sided) or product (one-sided) normal value;
+    # one-sided quantiles may be negative, so that case iterates on c itself
+    per = -np.expm1(np.log(conf) / p)
+    x0 = special.ndtri(1.0 - (0.5 * per if two_sided else per))
+    if two_sided:
+        x0 = np.maximum(x0, 0.1)
+    nu = np.full(conf.shape, df)
+    return _quantile(fun, conf, nu, x0, 1.0, log_scale=two_sided)[0].reshape(shape)
 
 
 # ---------------------------------------------------------------------------
@@ -1040,6 +770,11 @@ def smm_ppf(conf, m, df):
     ndarray
         Critical values, broadcast over the arguments.
 
+    Notes
+    -----
+    Newton iteration with the density from the same integral, from
+    Sidak's value (exact at ``df = inf``) mapped through Student's t.
+
     References
     ----------
     .. [1] Hochberg, Y. & Tamhane, A. C. (1987). Multiple Comparison
@@ -1054,14 +789,15 @@ def smm_ppf(conf, m, df):
     conf = _check_prob("conf", conf)
     m = _check_int("m", m, 1)
     df = _check_df(df)
-    conf, m, df = np.broadcast_arrays(conf, m, df)
-    shape = conf.shape
-    conf, m, df = conf.ravel(), m.ravel(), df.ravel()
+    shape = np.broadcast_shapes(conf.shape, m.shape, df.shape)
+    conf, m, df = (np.array(a, dtype=float).ravel() for a in np.broadcast_arrays(conf, m, df))
 
-    def fun(x, idx):
-        return _by_shape(_smm_table, x, m[idx], df[idx])
+    def fun(x, idx, nu):
+        return _by_shape(_smm_table, x, m[idx], nu, density=True)
 
-    return _ppf_tail(fun, conf, 1.0, 3.0).reshape(shape)
+    # df = inf is Sidak's value exactly: 1 - (2 Phi(c) - 1)^m = 1 - conf
+    x0 = special.ndtri(1.0 - 0.5 * -np.expm1(np.log(conf) / m))
+    return _quantile(fun, conf, df, np.maximum(x0, 0.1), 1.0)[0].reshape(shape)
 
 
 # ---------------------------------------------------------------------------

@@ -6,6 +6,8 @@ Sources are named beside each value; "H60" = Harter (1960) Ann. Math. Statist.
 /work/shared/CHECK-VALUES.md rows recalled from printed tables.
 """
 
+import warnings
+
 import numpy as np
 import pytest
 from scipy import integrate, special, stats
@@ -357,6 +359,72 @@ def test_dunnett_monotone_and_shape():
     np.testing.assert_array_equal(dunnett_sf(t, lam, 20), sf)   # deterministic
     c = dunnett_ppf([0.9, 0.95, 0.99], lam, 20)
     np.testing.assert_allclose(dunnett_sf(c, lam, 20), [0.1, 0.05, 0.01], rtol=1e-9)
+
+
+@pytest.mark.parametrize("lam", [0.999, 0.9999])
+@pytest.mark.parametrize("t", [1.0, 2.5])
+def test_dunnett_near_perfect_correlation_multivariate_t(lam, t):
+    # lam -> 1 (a reference far noisier than the treatments): scipy.stats.multivariate_t
+    # (Genz-Bretz randomised QMC, 2x2 shape with rho = lam^2) at df = 10; QMC error ~1e-5
+    corr = np.array([[1.0, lam * lam], [lam * lam, 1.0]])
+    mvt = stats.multivariate_t(shape=corr, df=10, seed=3)
+    two = 1 - mvt.cdf(np.full(2, t), lower_limit=np.full(2, -t), maxpts=200_000)
+    one = 1 - mvt.cdf(np.full(2, t), maxpts=200_000)
+    assert dunnett_sf(t, [lam, lam], 10) == pytest.approx(two, abs=5e-5)
+    assert dunnett_sf(t, [lam, lam], 10, "greater") == pytest.approx(one, abs=5e-5)
+
+
+@pytest.mark.parametrize("df", [10, np.inf])
+def test_dunnett_perfect_correlation_limit(df):
+    # common practice, no source: perfectly correlated comparisons are one test, so as
+    # lam_i = lam -> 1 the max-|T| tail tends to 2 t.sf(t, df) (scipy.stats.t) from above
+    # (more correlation, smaller maximum: Sidak 1968), at a rate linear in
+    # sig = sqrt(1 - lam^2), the spread of the non-shared parts (math)
+    t = np.array([1.0, 2.5, 5.0])
+    lim2, lim1 = 2 * stats.t.sf(t, df), stats.t.sf(t, df)
+    lams = [0.999, 0.9999, 1 - 1e-9]
+    rel = []
+    for lam in lams:
+        p2 = dunnett_sf(t, [lam, lam, lam], df)
+        p1 = dunnett_sf(t, [lam, lam, lam], df, "greater")
+        assert np.all(np.isfinite(p2)) and np.all(p2 >= lim2) and np.all(p1 >= lim1)
+        rel.append(p2 / lim2 - 1)
+    assert np.all(rel[0] > rel[1]) and np.all(rel[1] > rel[2])
+    sig = np.sqrt(1 - np.square(lams))
+    assert np.all(rel[2] <= 3 * sig[2] * t)                      # ~1e-4 at lam = 1 - 1e-9
+    # first order in sig: rel / sig agrees between lam = 0.9999 and 1 - 1e-9
+    np.testing.assert_allclose(rel[1] / sig[1], rel[2] / sig[2], rtol=0.02)
+    p1 = dunnett_sf(t, [1 - 1e-9] * 3, df, "greater")
+    np.testing.assert_allclose(p1, lim1, rtol=3 * sig[2] * t.max())
+    # quantiles: the two-sided critical value tends to t(1 - alpha/2; df)
+    c = dunnett_ppf([0.95, 0.99], [1 - 1e-9] * 3, df)
+    np.testing.assert_allclose(c, stats.t.isf([0.025, 0.005], df), rtol=1e-3)
+    np.testing.assert_allclose(dunnett_sf(c, [1 - 1e-9] * 3, df), [0.05, 0.01], rtol=1e-9)
+
+
+def test_dunnett_mixed_near_one_and_moderate_lam():
+    # one lam near 1 among moderate ones: the inverse pair with its own quantile, and
+    # the one-sided df = inf value against scipy.stats.multivariate_normal (Genz)
+    lam = np.array([0.3, 0.7, 0.99999])
+    c = dunnett_ppf([0.9, 0.95, 0.99], lam, 15)
+    np.testing.assert_allclose(dunnett_sf(c, lam, 15), [0.1, 0.05, 0.01], rtol=1e-9)
+    cov = np.outer(lam, lam)
+    np.fill_diagonal(cov, 1.0)
+    ref = 1 - stats.multivariate_normal(np.zeros(3), cov).cdf(np.full(3, 2.1), rng=1)
+    assert abs(dunnett_sf(2.1, lam, np.inf, "greater") - ref) < 1e-5
+
+
+def test_broadcast_views_reach_no_compiled_code():
+    # views from np.broadcast_arrays are copied before the compiled loops (numba would
+    # otherwise emit numpy's FutureWarning about writeable broadcast arrays)
+    t, df = np.broadcast_arrays(np.array([2.0, 2.5]), 12.0)
+    lam, _ = np.broadcast_arrays(np.array(0.6), np.ones(3))
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        dunnett_sf(t, lam, 12)
+        dunnett_ppf(np.broadcast_arrays(0.95, np.ones(2))[0], lam, 12)
+        srange_sf(t, 4, df)
+        smm_ppf(np.broadcast_arrays(0.95, np.ones(2))[0], 3, df)
 
 
 # ---------------------------------------------------------------------------
