@@ -8,6 +8,7 @@ procedure, cross-checks the result and records why the procedure was chosen.
 from importlib.metadata import PackageNotFoundError, version as _version
 
 from .api import calibrate, compare, inspect
+from .batch import batch
 from .errors import FamwiseError, FamwiseInputError, FamwiseWarning
 from .layout import Layout
 
@@ -16,5 +17,5 @@ try:
 except PackageNotFoundError:  # running from a source tree without install
     __version__ = "0.0.0+unknown"
 
-__all__ = ["__version__", "compare", "inspect", "calibrate", "FamwiseError",
+__all__ = ["__version__", "compare", "inspect", "calibrate", "batch", "FamwiseError",
            "FamwiseInputError", "FamwiseWarning", "Layout"]

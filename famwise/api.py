@@ -7,7 +7,6 @@ line and batch sit above this module.
 
 from __future__ import annotations
 
-import hashlib
 import os
 import shlex
 import warnings
@@ -20,7 +19,7 @@ from .diagnostics import Findings, Policy, load_policy, run_checks
 from .diagnostics.route import Route, choose
 from .errors import FamwiseInputError, SmallGroupWarning
 from .families import Family, build_family
-from .intake import Intake, read
+from .intake import Intake, file_sha256, read
 from .layout import Layout
 from .ledger import Ledger
 from .margin import check_margin, classify
@@ -42,17 +41,6 @@ class Inspection:
     ledger: Ledger
     groups: pd.DataFrame
     findings: Findings
-
-
-def _sha256(path) -> str | None:
-    try:
-        h = hashlib.sha256()
-        with open(path, "rb") as fh:
-            for block in iter(lambda: fh.read(1 << 20), b""):
-                h.update(block)
-        return h.hexdigest()
-    except OSError:
-        return None
 
 
 def load_data(data, response=None, group=None, **read_options) -> Intake:
@@ -251,7 +239,7 @@ def _record(intake, data, fam: Family, alpha, margin, findings, pol, route: Rout
     if command is None:
         command = _reproduce(data, response, group, fam, alpha, route, resampling, seed)
     return DecisionRecord(
-        input={"source": led.source, "sha256": _sha256(data) if is_file else None,
+        input={"source": led.source, "sha256": file_sha256(data) if is_file else None,
                "response": intake.layout.response, "group": intake.layout.group,
                "layout": "wide" if led.unit == "cell" else "long",
                "ledger": led.to_dict()},

@@ -64,7 +64,7 @@ import pandas as pd
 
 from .adjust import bh, by as by_adjust
 from .errors import FamwiseInputError, FamwiseWarning, did_you_mean
-from .intake import Intake, read
+from .intake import Intake, file_sha256, find_column, read
 from .ledger import Dropped, Ledger
 from .output import prepare_folder, safe_csv_text, write_atomic
 
@@ -302,20 +302,6 @@ def folder_name(label, taken=()) -> str:
 
 # --- choosing the responses --------------------------------------------------------
 
-def _column(header, name, source, role) -> int:
-    name = str(name)
-    if header.count(name) > 1:
-        raise FamwiseInputError(f"{source!r} has {header.count(name)} columns named {name!r}")
-    if name in header:
-        return header.index(name)
-    folded = [h.casefold() for h in header]
-    if folded.count(name.strip().casefold()) == 1:
-        return folded.index(name.strip().casefold())
-    raise FamwiseInputError(
-        f"{source!r} has no {role} column {name!r} (columns: "
-        f"{', '.join(map(repr, header))}){did_you_mean(name, header)}")
-
-
 def numeric_columns(raw, skip=(), decimal=".") -> tuple[list[int], list[dict]]:
     """Return the columns of ``raw`` that hold measurements, and why others do not.
 
@@ -325,7 +311,7 @@ def numeric_columns(raw, skip=(), decimal=".") -> tuple[list[int], list[dict]]:
     analyte written mostly as ``"<DL"`` stays in (and its task reports that
     it has too few numbers), while dates, notes and sample codes stay out.
     """
-    from .intake import _parse_values
+    from .intake import parse_values
     chosen, skipped = [], []
     for j, name in enumerate(raw.header):
         if j in skip:
@@ -333,7 +319,7 @@ def numeric_columns(raw, skip=(), decimal=".") -> tuple[list[int], list[dict]]:
         if not name:
             skipped.append({"column": f"#{j + 1}", "why": "no header"})
             continue
-        _, reasons, _ = _parse_values(raw.body[j], decimal)
+        _, reasons, _ = parse_values(raw.body[j], decimal)
         numbers = int(np.sum(reasons == ""))
         censored = int(np.isin(reasons, _CENSORED_REASONS).sum())
         text = int(np.sum(reasons == "text"))
@@ -620,7 +606,7 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
     >>> res.table[["response", "procedure", "omnibus_q"]]     # doctest: +SKIP
     """
     from .api import _policy
-    from .intake import _load
+    from .intake import load_table
     from .procedures import check_procedure
     from .validate import check_alpha
     started = time.perf_counter()
@@ -643,11 +629,11 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
         raise FamwiseInputError(f"decimal must be '.' or ','; got {decimal!r}")
     pol = _policy(policy)
     root = np.random.SeedSequence(seed)
-    raw = _load(data, sheet=sheet, delimiter=delimiter, decimal=decimal, encoding=encoding)
+    raw = load_table(data, sheet=sheet, delimiter=delimiter, decimal=decimal, encoding=encoding)
     source = raw.source
     header = raw.header
-    g = _column(header, group, source, "group")
-    b = _column(header, by, source, "stratum (by)") if by is not None else None
+    g = find_column(header, group, source, "group")
+    b = find_column(header, by, source, "stratum (by)") if by is not None else None
     if b == g:
         raise FamwiseInputError(f"by and group are the same column {header[g]!r}")
     skipped = []
@@ -661,7 +647,7 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
         if isinstance(responses, str):
             raise FamwiseInputError(
                 f"responses must be a list of column names or 'all-numeric'; got {responses!r}")
-        picked = [_column(header, r, source, "response") for r in responses]
+        picked = [find_column(header, r, source, "response") for r in responses]
         if not picked:
             raise FamwiseInputError("responses is empty; name at least one column")
         for j in picked:
@@ -779,8 +765,8 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
 
 def _has_censored(raw, columns, decimal) -> bool:
     """Whether any response cell is a non-detect or below-limit text."""
-    from .intake import _parse_values
-    return any(np.isin(_parse_values(raw.body[j], decimal)[1], _CENSORED_REASONS).any()
+    from .intake import parse_values
+    return any(np.isin(parse_values(raw.body[j], decimal)[1], _CENSORED_REASONS).any()
                for j in columns)
 
 
@@ -790,10 +776,7 @@ def _entropy(root):
 
 
 def _sha256(data):
-    if not isinstance(data, (str, os.PathLike)):
-        return None
-    from .api import _sha256 as sha
-    return sha(data)
+    return file_sha256(data) if isinstance(data, (str, os.PathLike)) else None
 
 
 def _tabulate(tasks, outcomes, stratified, fdr, alpha):

@@ -39,7 +39,7 @@ from .errors import FamwiseInputError, did_you_mean, LabelSpellingWarning
 from .layout import Layout
 from .ledger import Dropped, Ledger
 
-__all__ = ["Intake", "read", "TEXT_SUFFIXES", "EXCEL_SUFFIXES", "PARQUET_SUFFIXES"]
+__all__ = ["Intake", "read", "file_sha256", "load_table", "parse_values", "find_column", "RawTable", "TEXT_SUFFIXES", "EXCEL_SUFFIXES", "PARQUET_SUFFIXES"]
 
 TEXT_SUFFIXES = (".csv", ".tsv", ".txt", ".tab", ".dat")
 EXCEL_SUFFIXES = (".xlsx", ".xlsm")
@@ -59,10 +59,23 @@ class Intake:
     ledger: Ledger
 
 
+def file_sha256(path) -> str | None:
+    """Return the SHA-256 of the file at ``path`` (None if it cannot be read)."""
+    import hashlib
+    try:
+        h = hashlib.sha256()
+        with open(path, "rb") as fh:
+            for block in iter(lambda: fh.read(1 << 20), b""):
+                h.update(block)
+        return h.hexdigest()
+    except OSError:
+        return None
+
+
 # --- loading a raw table -----------------------------------------------------
 
 @dataclass(frozen=True)
-class _Raw:
+class RawTable:
     header: list[str]
     body: pd.DataFrame      # object cells, positional columns
     rows: np.ndarray        # 1-based source row number of each body row
@@ -253,14 +266,14 @@ def _read_excel(path: str, sheet) -> tuple[pd.DataFrame, list[str]]:
     return frame, [f"sheet: {sheet!r}"]
 
 
-def _load(source, *, sheet, delimiter, decimal, encoding) -> _Raw:
+def load_table(source, *, sheet, delimiter, decimal, encoding) -> RawTable:
     if isinstance(source, pd.DataFrame):
         if source.shape[1] == 0 or source.shape[0] == 0:
             raise FamwiseInputError("the DataFrame is empty")
         body = source.reset_index(drop=True)
         header = [str(c) for c in body.columns]
         body.columns = range(body.shape[1])
-        return _Raw(header, body, np.arange(1, len(body) + 1), "<DataFrame>", ())
+        return RawTable(header, body, np.arange(1, len(body) + 1), "<DataFrame>", ())
     path = os.fspath(source)
     if not os.path.exists(path):
         raise FamwiseInputError(f"file not found: {path!r}")
@@ -283,7 +296,7 @@ def _load(source, *, sheet, delimiter, decimal, encoding) -> _Raw:
         header = [str(c) for c in body.columns]
         body = body.reset_index(drop=True)
         body.columns = range(body.shape[1])
-        return _Raw(header, body, np.arange(1, len(body) + 1), path, ())
+        return RawTable(header, body, np.arange(1, len(body) + 1), path, ())
     skipped = 0
     if suffix in EXCEL_SUFFIXES:
         frame, notes = _read_excel(path, sheet)
@@ -309,7 +322,7 @@ def _load(source, *, sheet, delimiter, decimal, encoding) -> _Raw:
     # Source row of body row i: frame index h + 1 + i (after the skipped
     # leading blank lines), shown 1-based.
     first = h + 2 + skipped
-    return _Raw(header, body, np.arange(first, first + len(body)), path, tuple(notes))
+    return RawTable(header, body, np.arange(first, first + len(body)), path, tuple(notes))
 
 
 def _is_blank(x) -> bool:
@@ -322,7 +335,7 @@ def _is_blank(x) -> bool:
 
 # --- parsing values ----------------------------------------------------------
 
-def _parse_values(cells: pd.Series, decimal: str) -> tuple[np.ndarray, np.ndarray, list]:
+def parse_values(cells: pd.Series, decimal: str) -> tuple[np.ndarray, np.ndarray, list]:
     """Return (values, reason codes, raw texts); reason '' means usable."""
     n = len(cells)
     raw = cells.to_numpy(dtype=object)
@@ -418,7 +431,7 @@ def _labels(cells: pd.Series) -> np.ndarray:
     return out
 
 
-def _find_column(header: list[str], name, source: str, role: str) -> int:
+def find_column(header: list[str], name, source: str, role: str) -> int:
     if name is None:
         raise FamwiseInputError(f"name the {role} column (columns in {source!r}: "
                                 f"{', '.join(map(repr, header))})")
@@ -498,7 +511,7 @@ def read(source, response: str | None = None, group: str | None = None, *,
         raise FamwiseInputError(f"decimal must be '.' or ','; got {decimal!r}")
     if delimiter is not None and (not isinstance(delimiter, str) or len(delimiter) != 1):
         raise FamwiseInputError(f"delimiter must be a single character; got {delimiter!r}")
-    raw = _load(source, sheet=sheet, delimiter=delimiter, decimal=decimal,
+    raw = load_table(source, sheet=sheet, delimiter=delimiter, decimal=decimal,
                 encoding=encoding)
     src = raw.source
     excluded = _excluded_rows(exclude_rows, raw)
@@ -569,15 +582,15 @@ def read(source, response: str | None = None, group: str | None = None, *,
     return Intake(layout, ledger)
 
 
-def _long(raw: _Raw, response, group, decimal, excluded):
+def _long(raw: RawTable, response, group, decimal, excluded):
     src = raw.source
-    r = _find_column(raw.header, response, src, "response")
-    g = _find_column(raw.header, group, src, "group")
+    r = find_column(raw.header, response, src, "response")
+    g = find_column(raw.header, group, src, "group")
     if r == g:
         raise FamwiseInputError(
             f"response and group are the same column {raw.header[r]!r}")
     rname, gname = raw.header[r], raw.header[g]
-    values, reasons, texts = _parse_values(raw.body[r], decimal)
+    values, reasons, texts = parse_values(raw.body[r], decimal)
     labels = _labels(raw.body[g])
     blank_row = raw.body.apply(lambda col: col.map(_is_blank)).all(axis=1).to_numpy()
     if not np.any(reasons == ""):
@@ -603,7 +616,7 @@ def _long(raw: _Raw, response, group, decimal, excluded):
             len(values), rname, gname)
 
 
-def _wide(raw: _Raw, columns, decimal, excluded):
+def _wide(raw: RawTable, columns, decimal, excluded):
     src = raw.source
     header = raw.header
     if columns is None:
@@ -613,10 +626,10 @@ def _wide(raw: _Raw, columns, decimal, excluded):
                 f"{src!r} has a column without a header (column {header.index('') + 1}); "
                 f"name it or choose the group columns")
     else:
-        use = [_find_column(header, c, src, "group") for c in columns]
+        use = [find_column(header, c, src, "group") for c in columns]
     values, labels, rows, dropped = [], [], [], []
     for j in use:
-        v, reasons, texts = _parse_values(raw.body[j], decimal)
+        v, reasons, texts = parse_values(raw.body[j], decimal)
         for i in range(len(v)):
             if raw.rows[i] in excluded:
                 dropped.append(Dropped(int(raw.rows[i]), header[j], texts[i], "excluded",
@@ -650,7 +663,7 @@ def _check_labels(labels, rows, src: str, unit: str) -> None:
                 f"{lab[:30]!r}); this usually means an unbalanced quote in the file")
 
 
-def _excluded_rows(exclude_rows, raw: _Raw) -> set:
+def _excluded_rows(exclude_rows, raw: RawTable) -> set:
     rows = set()
     for r in exclude_rows or ():
         try:
