@@ -25,7 +25,9 @@ yuen_holm      pairs                       Yuen trimmed-mean t; Holm p-values,
                                            Bonferroni intervals
 =============  ==========================  ===================================
 
-``welch_anova`` is Welch's (1951) omnibus test of equal means.
+``welch_anova`` is Welch's (1951) omnibus test of equal means.  Yuen's
+trimmed-mean procedure lives in :mod:`famwise.trimmed` (``yuen_holm``,
+``trimmed_summary``, ``TrimmedSummary``, re-exported here).
 
 The vectorised cores :func:`welch_statistics`, :func:`games_howell_pvalues`
 and :func:`dunnett_t3_pvalues` work from summary statistics with any leading
@@ -34,7 +36,8 @@ rather than raw data and calls the distribution functions once per batch;
 :func:`games_howell_rejects` and :func:`dunnett_t3_rejects` give the same
 decisions at one alpha for a fraction of the cost.  Per-comparison critical
 values at many distinct df come from :func:`critical_values_over_df`
-(Chebyshev interpolation in df with an error check), so the cost of a
+(:mod:`famwise.critical`, re-exported here; Chebyshev interpolation in
+df with an error check), so the cost of a
 procedure does not grow with the number of distinct df.
 
 Numerics: group means are computed from values shifted by their median and
@@ -65,20 +68,21 @@ Holm, S. (1979). A simple sequentially rejective multiple test procedure.
 from __future__ import annotations
 
 import math
-import numbers
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from numpy.polynomial import chebyshev as _cheb
 from scipy import stats as _st
 
 from . import adjust as _adjust
 from . import distributions as _dist
-from .errors import FamwiseError, FamwiseInputError
+from ._unequal_common import (_check_family, _check_layout, _fmt, _interval,
+                              _offending_contrast, _sided, _t_crit, _t_pvalue, _table)
+from .critical import critical_values_over_df
+from .errors import FamwiseInputError
 from .families import Family, all_pairs
 from .layout import Layout, group_stats
-from .table import comparisons_table
+from .trimmed import TrimmedSummary, trimmed_summary, yuen_holm
 from .validate import check_alpha, check_alternative
 
 __all__ = [
@@ -104,34 +108,6 @@ class _Groups:
     mean_shifted: np.ndarray
     var: np.ndarray
     shift: float
-
-
-def _fmt(x: float) -> str:
-    return f"{x:.6g}"
-
-
-def _check_layout(layout) -> Layout:
-    if not isinstance(layout, Layout):
-        raise FamwiseInputError(
-            f"layout must be a famwise.Layout; got {type(layout).__name__} "
-            f"(build one with famwise.Layout.from_groups or famwise.intake)")
-    if layout.k < 2:
-        raise FamwiseInputError(f"comparisons need at least two groups; got {layout.k}")
-    if layout.values.size == 0 or not np.all(np.isfinite(layout.values)):
-        raise FamwiseInputError("layout values must be finite and not empty")
-    return layout
-
-
-def _check_family(layout: Layout, family) -> Family:
-    if not isinstance(family, Family):
-        raise FamwiseInputError(
-            f"family must be a famwise.families.Family; got {type(family).__name__} "
-            f"(build one with famwise.families.build_family)")
-    if tuple(family.labels) != tuple(layout.labels):
-        raise FamwiseInputError(
-            f"family was built for groups {list(family.labels)} but the layout has "
-            f"{list(layout.labels)}; build the family from layout.labels")
-    return family
 
 
 def _groups(layout: Layout, involved=None) -> _Groups:
@@ -349,122 +325,6 @@ def dunnett_t3_pvalues(means, variances, n, weights=None) -> np.ndarray:
 
 # --- critical values at many df ------------------------------------------------
 
-_CRIT_NODES = (16, 32, 64)
-_CRIT_RTOL = 1e-10
-
-
-def _solve_upper(sf_at, alpha: float, df: np.ndarray) -> np.ndarray:
-    """Critical values ``c`` with ``sf_at(c, df) = alpha``, vectorised over df.
-
-    Illinois regula falsi on ``g(u) = log sf(e^u) - log alpha`` (decreasing
-    in ``u = log c``, nearly linear in the t-like tail), after bracketing by
-    steps of one in ``u``; about ten calls of ``sf_at`` for all elements.
-    """
-    la = math.log(alpha)
-    n = df.size
-
-    def g(u, idx):
-        with np.errstate(divide="ignore"):
-            return np.log(np.asarray(sf_at(np.exp(u), df[idx]), dtype=np.float64)) - la
-
-    idx = np.arange(n)
-    a, b = np.zeros(n), np.full(n, math.log(8.0))
-    ga, gb = g(a, idx), g(b, idx)
-    for _ in range(60):                                 # bracket: g(a) > 0 > g(b)
-        lo, hi = ga <= 0.0, gb >= 0.0
-        if not (lo.any() or hi.any()):
-            break
-        if lo.any():
-            i = np.flatnonzero(lo)
-            b[i], gb[i] = a[i], ga[i]
-            a[i] -= 1.0
-            ga[i] = g(a[i], i)
-        if hi.any():
-            i = np.flatnonzero(hi)
-            a[i], ga[i] = b[i], gb[i]
-            b[i] += 1.0
-            gb[i] = g(b[i], i)
-    else:
-        raise RuntimeError("famwise.unequal: could not bracket a critical value")
-    x = 0.5 * (a + b)
-    side = np.zeros(n)
-    active = np.ones(n, bool)
-    for _ in range(200):
-        i = np.flatnonzero(active)
-        if i.size == 0:
-            break
-        xi = b[i] - gb[i] * (b[i] - a[i]) / (gb[i] - ga[i])
-        bad = ~((xi > a[i]) & (xi < b[i]))
-        xi[bad] = 0.5 * (a[i] + b[i])[bad]
-        x[i] = xi
-        gx = g(xi, i)
-        right = gx < 0.0                                # root lies left of xi
-        r, l_ = i[right], i[~right]
-        b[r], gb[r] = xi[right], gx[right]
-        ga[r] = np.where(side[r] == -1.0, 0.5 * ga[r], ga[r])
-        side[r] = -1.0
-        a[l_], ga[l_] = xi[~right], gx[~right]
-        gb[l_] = np.where(side[l_] == 1.0, 0.5 * gb[l_], gb[l_])
-        side[l_] = 1.0
-        active[i] = ~((np.abs(gx) <= 1e-13) | (b[i] - a[i] <= 1e-14 * np.abs(xi)))
-    return np.exp(x)
-
-
-def critical_values_over_df(sf_at, alpha: float, df) -> np.ndarray:
-    """Return the upper ``alpha`` critical values at an array of df, cheaply.
-
-    A procedure with one df per comparison (Games-Howell, Dunnett's T3,
-    Welch vs a reference) needs a quantile at every comparison's df; solving
-    for each costs a root search per element.  Instead the quantile is
-    solved (regula falsi on the upper tail) at Chebyshev nodes in
-    ``x = 1/sqrt(df + 1)`` spanning the observed df, and ``log c(x)``, an
-    analytic function, is interpolated.  The interpolant is accepted when its
-    two highest Chebyshev coefficients (the size of the truncation error of a
-    rapidly converging series) are below 1e-10, the target relative error of
-    ``c``, and it agrees within 1e-9 with direct solutions at two check
-    points between the outermost nodes (where the interpolation error peaks);
-    otherwise the node count doubles (16, 32, 64) and, failing that, every
-    distinct df is solved directly.  At most 16 distinct df are
-    always solved directly.
-
-    Parameters
-    ----------
-    sf_at : callable
-        ``sf_at(c, df) -> upper-tail probability``, vectorised over equal-shape
-        ``c`` and ``df`` (for example ``lambda c, d: srange_sf(c, k, d)``).
-    alpha : float
-        Upper-tail probability of the critical value.
-    df : array_like
-        Degrees of freedom (finite, >= 1).
-
-    Returns
-    -------
-    ndarray
-        Critical values shaped like ``df`` (relative error below about 1e-10).
-    """
-    df = np.asarray(df, dtype=np.float64)
-    udf, inverse = np.unique(df, return_inverse=True)
-    if udf.size <= _CRIT_NODES[0]:
-        return _solve_upper(sf_at, alpha, udf)[inverse].reshape(df.shape)
-    x = 1.0 / np.sqrt(udf + 1.0)                     # df = inf would be x = 0
-    a, b = float(x.min()), float(x.max())
-
-    def df_of(t):
-        return (0.5 * (a + b) + 0.5 * (b - a) * t) ** -2.0 - 1.0
-
-    for nodes in _CRIT_NODES:
-        coef = _cheb.chebinterpolate(lambda t: np.log(_solve_upper(sf_at, alpha, df_of(t))),
-                                     nodes - 1)
-        if np.max(np.abs(coef[-2:])) > _CRIT_RTOL:
-            continue
-        # spot check between the two outermost nodes at each end, where a
-        # Chebyshev interpolant's error peaks
-        tc = np.cos(np.pi * np.array([1.0, nodes - 1.0]) / nodes)
-        check = _solve_upper(sf_at, alpha, df_of(tc))
-        if np.all(np.abs(np.exp(_cheb.chebval(tc, coef)) / check - 1.0) <= 10 * _CRIT_RTOL):
-            z = 2.0 * (x - a) / (b - a) - 1.0
-            return np.exp(_cheb.chebval(z, coef))[inverse].reshape(df.shape)
-    return _solve_upper(sf_at, alpha, udf)[inverse].reshape(df.shape)
 
 
 def _pair_rows(k, pairs):
@@ -623,50 +483,6 @@ def _family_welch(g: _Groups, family: Family) -> WelchStatistics:
     return _welch(g.mean_shifted, g.var, g.n.astype(np.float64), family.weights)
 
 
-def _t_pvalue(t, df, alternative):
-    if alternative == "two-sided":
-        return np.minimum(1.0, 2.0 * _st.t.sf(np.abs(t), df))
-    if alternative == "greater":
-        return _st.t.sf(t, df)
-    return _st.t.cdf(t, df)
-
-
-def _t_crit(level, df, alternative):
-    return _st.t.isf(level / 2.0 if alternative == "two-sided" else level, df)
-
-
-def _interval(est, se, crit, alternative):
-    half = crit * se
-    if alternative == "two-sided":
-        return est - half, est + half
-    if alternative == "greater":
-        return est - half, np.full_like(est, np.inf)
-    return np.full_like(est, -np.inf), est + half
-
-
-def _sided(alternative):
-    return "two-sided" if alternative == "two-sided" else f"one-sided ({alternative})"
-
-
-def _table(family, ws, p_unadj, p_adj, lower, upper, alpha, procedure, alternative, *,
-           interval_note, error_rate="familywise", **attrs):
-    table = comparisons_table(
-        family, difference=ws.difference, std_error=ws.std_error, df=ws.df,
-        statistic=ws.statistic, p_unadjusted=p_unadj, p_adjusted=p_adj,
-        ci_lower=lower, ci_upper=upper, alpha=alpha, procedure=procedure)
-    table.attrs["alternative"] = alternative
-    table.attrs["error_rate"] = error_rate
-    table.attrs["interval_note"] = interval_note
-    table.attrs.update(attrs)
-    return table
-
-
-def _offending_contrast(family: Family) -> str:
-    for name, row in zip(family.names, family.weights):
-        pos, neg = np.flatnonzero(row > 0), np.flatnonzero(row < 0)
-        if not (len(pos) == 1 and len(neg) == 1 and row[pos[0]] == 1 and row[neg[0]] == -1):
-            return name
-    return family.names[0]
 
 
 # --- the procedures -------------------------------------------------------------
@@ -943,20 +759,13 @@ def welch_dunnett(layout: Layout, family: Family, *, alpha: float = 0.05,
     t = ws.statistic
     side = "two-sided" if alternative == "two-sided" else "greater"
     stat = np.abs(t) if alternative == "two-sided" else (t if alternative == "greater" else -t)
+
     def sf_at(c, d):
         return np.array([float(_dist.dunnett_sf(ci, lam, float(di), alternative=side))
                          for ci, di in zip(c, d)])
 
-    try:
-        p_adj = sf_at(stat, ws.df)
-        crit = critical_values_over_df(sf_at, alpha, ws.df)
-    except RuntimeError as exc:   # a limitation of the distribution code, not bad input
-        worst = int(np.argmax(lam))
-        raise FamwiseError(
-            f"welch-dunnett could not evaluate the max-|t| probability ({exc}); the "
-            f"reference {family.labels[family.reference]!r} is far noisier than "
-            f"{family.names[worst]!r} (lambda = {lam[worst]:.6g}); use 'dunnett-t3' "
-            f"for this family") from exc
+    p_adj = sf_at(stat, ws.df)
+    crit = critical_values_over_df(sf_at, alpha, ws.df)
     p_unadj = _t_pvalue(t, ws.df, alternative)
     lower, upper = _interval(ws.difference, ws.std_error, crit, alternative)
     return _table(family, ws, p_unadj, p_adj, lower, upper, alpha, "welch-dunnett",
@@ -967,183 +776,3 @@ def welch_dunnett(layout: Layout, family: Family, *, alpha: float = 0.05,
                                 f"Welch correlations, at each row's Welch df",
                   correlation_lambda=lam, critical_value=crit)
 
-
-# --- Yuen's trimmed means --------------------------------------------------------
-
-@dataclass(frozen=True)
-class TrimmedSummary:
-    """Per-group trimmed means and Yuen's squared standard errors.
-
-    Attributes
-    ----------
-    n : ndarray of int, shape (k,)
-        Group sizes.
-    trimmed : ndarray of int, shape (k,)
-        ``g = floor(trim * n)`` values cut from each end.
-    h : ndarray of int, shape (k,)
-        Values kept, ``n - 2 g``.
-    mean : ndarray, shape (k,)
-        Trimmed means.
-    winsorized_var : ndarray, shape (k,)
-        Winsorised variances (ddof = 1).
-    d : ndarray, shape (k,)
-        Yuen's ``(n - 1) s_w^2 / (h (h - 1))``, the squared standard error of
-        the trimmed mean.
-    trim : float
-    """
-
-    n: np.ndarray
-    trimmed: np.ndarray
-    h: np.ndarray
-    mean: np.ndarray
-    winsorized_var: np.ndarray
-    d: np.ndarray
-    trim: float
-
-
-def _check_trim(trim) -> float:
-    if isinstance(trim, bool) or not isinstance(trim, numbers.Real) \
-            or not math.isfinite(trim) or not 0.0 <= trim < 0.5:
-        raise FamwiseInputError(
-            f"trim must be a proportion in [0, 0.5) cut from each end (e.g. 0.2); "
-            f"got {trim!r}")
-    return float(trim)
-
-
-def trimmed_summary(layout: Layout, trim: float = 0.2, involved=None) -> TrimmedSummary:
-    """Return trimmed means and winsorised variances of every group (Yuen 1974).
-
-    Parameters
-    ----------
-    layout : Layout
-    trim : float, default=0.2
-        Proportion cut from each end; ``g = floor(trim * n)`` values (a
-        tolerance of 1e-9 keeps ``0.29 * 100`` at 29).
-    involved : sequence of int, optional
-        Groups that must support Yuen's test (at least two values kept and a
-        positive winsorised variance); default: all.
-
-    Returns
-    -------
-    TrimmedSummary
-    """
-    _check_layout(layout)
-    ts, shift = _trimmed(layout, _check_trim(trim), involved)
-    return TrimmedSummary(ts.n, ts.trimmed, ts.h, ts.mean + shift, ts.winsorized_var,
-                          ts.d, ts.trim)
-
-
-def _trimmed(layout, trim, involved):
-    """Trimmed summary with means of median-shifted values, and the shift."""
-    shift = float(np.median(layout.values))
-    k = layout.k
-    n = np.zeros(k, np.int64)
-    gcut = np.zeros(k, np.int64)
-    mean = np.full(k, np.nan)
-    wvar = np.full(k, np.nan)
-    check = set(range(k) if involved is None else (int(i) for i in involved))
-    for i, x in enumerate(layout.split()):
-        x = np.sort(x - shift)
-        ni = x.size
-        gi = int(math.floor(trim * ni + 1e-9))
-        hi = ni - 2 * gi
-        n[i], gcut[i] = ni, gi
-        label = layout.labels[i]
-        if hi < 2:
-            if i in check:
-                raise FamwiseInputError(
-                    f"group {label!r} keeps {hi} of {ni} values after trimming {gi} from "
-                    f"each end (trim={trim:g}): Yuen's test needs at least two; lower "
-                    f"trim or use 'welch-holm'")
-            continue
-        kept = x[gi:ni - gi]
-        mean[i] = kept.mean() + (kept - kept.mean()).mean()
-        xw = np.clip(x, x[gi], x[ni - gi - 1])
-        wvar[i] = float(np.sum((xw - xw.mean()) ** 2) / (ni - 1))
-        if i in check and not wvar[i] > 0.0:
-            raise FamwiseInputError(
-                f"group {label!r} has zero winsorised variance (trim={trim:g}: the middle "
-                f"{hi} of {ni} values are all equal to {_fmt(kept[0] + shift)}): Yuen's "
-                f"standard error and df are undefined; check the values, lower trim, or "
-                f"use a pooled-variance procedure")
-    h = n - 2 * gcut
-    with np.errstate(invalid="ignore", divide="ignore"):
-        d = (n - 1) * wvar / (h * (h - 1.0))
-    return TrimmedSummary(n, gcut, h, mean, wvar, d, trim), shift
-
-
-def yuen_holm(layout: Layout, family: Family, *, alpha: float = 0.05,
-              alternative: str = "two-sided", trim: float = 0.2) -> pd.DataFrame:
-    """Yuen's trimmed-mean Welch tests for pairs, Holm adjusted.
-
-    For a pair ``(a, b)`` with trimmed means ``tm``, winsorised variances
-    ``s_w^2`` and ``h = n - 2 floor(trim n)`` kept values (Yuen 1974, eq. 2.2):
-
-        d_i = (n_i - 1) s_wi^2 / (h_i (h_i - 1)),
-        t = (tm_a - tm_b) / sqrt(d_a + d_b),
-        df = (d_a + d_b)^2 / (d_a^2 / (h_a - 1) + d_b^2 / (h_b - 1)).
-
-    Parameters
-    ----------
-    layout : Layout
-    family : Family
-        A pairwise family: all pairs, vs-reference, or contrasts each of which
-        is a difference of two groups.
-    alpha : float, default=0.05
-    alternative : {"two-sided", "greater", "less"}, default="two-sided"
-    trim : float, default=0.2
-        Proportion trimmed from each end of each group.
-
-    Returns
-    -------
-    pandas.DataFrame
-        The comparisons table; ``difference`` is the difference of **trimmed**
-        means (it estimates a difference of population trimmed means, not of
-        means) and ``std_error`` Yuen's.  The intervals are Bonferroni
-        simultaneous Yuen intervals (each at level 1 - alpha/m); Holm's
-        rejections may go beyond them.
-
-    Notes
-    -----
-    1. Resists outliers and heavy tails; the variances may differ.
-    2. ``trim=0`` gives :func:`welch_holm` on pairs.
-    3. Each pair is ``scipy.stats.ttest_ind(a, b, equal_var=False, trim=trim)``
-       (up to scipy's ``int(trim * n)`` in place of the floor with tolerance).
-
-    References
-    ----------
-    Yuen, K. K. (1974). *Biometrika* 61(1):165-170. doi:10.1093/biomet/61.1.165
-    Holm, S. (1979). *Scand. J. Statist.* 6(2):65-70.
-    """
-    _check_layout(layout)
-    _check_family(layout, family)
-    alpha = check_alpha(alpha)
-    alternative = check_alternative(alternative)
-    trim = _check_trim(trim)
-    if family.pairs is None:
-        raise FamwiseInputError(
-            f"yuen-holm handles differences of two group means only; contrast "
-            f"{_offending_contrast(family)!r} is not one (use 'welch-holm' or "
-            f"'dunnett-t3' for general contrasts)")
-    ts, _ = _trimmed(layout, trim, np.unique(family.pairs))
-    a, b = family.pairs[:, 0], family.pairs[:, 1]
-    sign = family.weights[np.arange(family.m), a]
-    tm = ts.mean
-    est = sign * (tm[a] - tm[b])
-    da, db = ts.d[a], ts.d[b]
-    scale = np.maximum(da, db)
-    ua, ub = da / scale, db / scale
-    se = np.sqrt((ua + ub) * scale)
-    # Yuen (1974) p. 167: Welch's df with h - 1 in place of n - 1
-    df = (ua + ub) ** 2 / (ua * ua / (ts.h[a] - 1.0) + ub * ub / (ts.h[b] - 1.0))
-    ws = WelchStatistics(est, se, est / se, df)
-    p = _t_pvalue(ws.statistic, df, alternative)
-    m = family.m
-    lower, upper = _interval(est, se, _t_crit(alpha / m, df, alternative), alternative)
-    return _table(family, ws, p, _adjust.holm(p), lower, upper, alpha, "yuen-holm",
-                  alternative,
-                  interval_note=f"{_sided(alternative)} Bonferroni simultaneous Yuen "
-                                f"intervals for differences of {trim:g}-trimmed means "
-                                f"(each at level 1 - alpha/{m}); Holm's rejections may "
-                                f"go beyond them",
-                  trim=trim)
