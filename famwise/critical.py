@@ -18,6 +18,7 @@ __all__ = ["critical_values_over_df"]
 
 _CRIT_NODES = (16, 32, 64)
 _CRIT_RTOL = 1e-10
+_CRIT_DIRECT_FAST = 64      # distinct df solved directly when a fast quantile is given
 
 
 def _solve_upper(sf_at, alpha: float, df: np.ndarray) -> np.ndarray:
@@ -77,7 +78,7 @@ def _solve_upper(sf_at, alpha: float, df: np.ndarray) -> np.ndarray:
     return np.exp(x)
 
 
-def critical_values_over_df(sf_at, alpha: float, df) -> np.ndarray:
+def critical_values_over_df(sf_at, alpha: float, df, *, ppf_at=None) -> np.ndarray:
     """Return the upper ``alpha`` critical values at an array of df, cheaply.
 
     A procedure with one df per comparison (Games-Howell, Dunnett's T3,
@@ -94,6 +95,11 @@ def critical_values_over_df(sf_at, alpha: float, df) -> np.ndarray:
     distinct df is solved directly.  At most 16 distinct df are
     always solved directly.
 
+    Where the family has a fast quantile function (``ppf_at``; the
+    studentized range and maximum modulus of :mod:`famwise.distributions`
+    take a few Newton steps for all df at once), it replaces regula falsi on
+    ``sf_at`` for every solve, and up to 64 distinct df are solved directly.
+
     Parameters
     ----------
     sf_at : callable
@@ -103,6 +109,9 @@ def critical_values_over_df(sf_at, alpha: float, df) -> np.ndarray:
         Upper-tail probability of the critical value.
     df : array_like
         Degrees of freedom (finite, >= 1).
+    ppf_at : callable, optional
+        ``ppf_at(df) -> c`` with ``sf_at(c, df) = alpha``, vectorised over
+        ``df``; for example ``lambda d: srange_ppf(1 - alpha, k, d)``.
 
     Returns
     -------
@@ -111,8 +120,14 @@ def critical_values_over_df(sf_at, alpha: float, df) -> np.ndarray:
     """
     df = np.asarray(df, dtype=np.float64)
     udf, inverse = np.unique(df, return_inverse=True)
-    if udf.size <= _CRIT_NODES[0]:
-        return _solve_upper(sf_at, alpha, udf)[inverse].reshape(df.shape)
+
+    def solve(d):
+        if ppf_at is not None:
+            return np.asarray(ppf_at(d), dtype=np.float64).reshape(d.shape)
+        return _solve_upper(sf_at, alpha, d)
+
+    if udf.size <= (_CRIT_DIRECT_FAST if ppf_at is not None else _CRIT_NODES[0]):
+        return solve(udf)[inverse].reshape(df.shape)
     x = 1.0 / np.sqrt(udf + 1.0)                     # df = inf would be x = 0
     a, b = float(x.min()), float(x.max())
 
@@ -120,15 +135,14 @@ def critical_values_over_df(sf_at, alpha: float, df) -> np.ndarray:
         return (0.5 * (a + b) + 0.5 * (b - a) * t) ** -2.0 - 1.0
 
     for nodes in _CRIT_NODES:
-        coef = _cheb.chebinterpolate(lambda t: np.log(_solve_upper(sf_at, alpha, df_of(t))),
-                                     nodes - 1)
+        coef = _cheb.chebinterpolate(lambda t: np.log(solve(df_of(t))), nodes - 1)
         if np.max(np.abs(coef[-2:])) > _CRIT_RTOL:
             continue
         # spot check between the two outermost nodes at each end, where a
         # Chebyshev interpolant's error peaks
         tc = np.cos(np.pi * np.array([1.0, nodes - 1.0]) / nodes)
-        check = _solve_upper(sf_at, alpha, df_of(tc))
+        check = solve(df_of(tc))
         if np.all(np.abs(np.exp(_cheb.chebval(tc, coef)) / check - 1.0) <= 10 * _CRIT_RTOL):
             z = 2.0 * (x - a) / (b - a) - 1.0
             return np.exp(_cheb.chebval(z, coef))[inverse].reshape(df.shape)
-    return _solve_upper(sf_at, alpha, udf)[inverse].reshape(df.shape)
+    return solve(udf)[inverse].reshape(df.shape)

@@ -327,6 +327,16 @@ def dunnett_t3_pvalues(means, variances, n, weights=None) -> np.ndarray:
 
 
 
+def _range_ppf(alpha, k):
+    """Games-Howell critical values q(1 - alpha; k, df) / sqrt(2) at an array of df."""
+    return lambda d: _dist.srange_ppf(1.0 - alpha, k, d) / _SQRT2
+
+
+def _smm_ppf(alpha, m):
+    """Dunnett T3 critical values m(1 - alpha; m, df) at an array of df."""
+    return lambda d: _dist.smm_ppf(1.0 - alpha, m, d)
+
+
 def _pair_rows(k, pairs):
     if pairs is None:
         i, j = np.triu_indices(k, 1)
@@ -371,7 +381,7 @@ def games_howell_rejects(means, variances, n, alpha: float = 0.05, pairs=None) -
     ws = _welch(means, variances, n, w)
     k_eff = int(np.unique(pairs).size)
     crit = critical_values_over_df(lambda c, d: _dist.srange_sf(_SQRT2 * c, k_eff, d),
-                                   alpha, ws.df)
+                                   alpha, ws.df, ppf_at=_range_ppf(alpha, k_eff))
     return np.abs(ws.statistic) >= crit
 
 
@@ -397,7 +407,8 @@ def dunnett_t3_rejects(means, variances, n, alpha: float = 0.05, weights=None) -
     alpha = check_alpha(alpha)
     ws = welch_statistics(means, variances, n, weights)
     m = ws.statistic.shape[-1]
-    crit = critical_values_over_df(lambda c, d: _dist.smm_sf(c, m, d), alpha, ws.df)
+    crit = critical_values_over_df(lambda c, d: _dist.smm_sf(c, m, d), alpha, ws.df,
+                                   ppf_at=_smm_ppf(alpha, m))
     return np.abs(ws.statistic) >= crit
 
 
@@ -645,7 +656,8 @@ def games_howell(layout: Layout, family: Family, *, alpha: float = 0.05,
     p_unadj = _t_pvalue(ws.statistic, ws.df, "two-sided")
     p_adj = _dist.srange_sf(_SQRT2 * np.abs(ws.statistic), k_eff, ws.df)
     crit = critical_values_over_df(
-        lambda c, d: _dist.srange_sf(_SQRT2 * c, k_eff, d), alpha, ws.df)
+        lambda c, d: _dist.srange_sf(_SQRT2 * c, k_eff, d), alpha, ws.df,
+        ppf_at=_range_ppf(alpha, k_eff))
     lower, upper = _interval(ws.difference, ws.std_error, crit, "two-sided")
     return _table(family, ws, p_unadj, p_adj, lower, upper, alpha, "games-howell",
                   "two-sided",
@@ -696,7 +708,8 @@ def dunnett_t3(layout: Layout, family: Family, *, alpha: float = 0.05,
     m = family.m
     p_unadj = _t_pvalue(ws.statistic, ws.df, "two-sided")
     p_adj = _dist.smm_sf(np.abs(ws.statistic), m, ws.df)
-    crit = critical_values_over_df(lambda c, d: _dist.smm_sf(c, m, d), alpha, ws.df)
+    crit = critical_values_over_df(lambda c, d: _dist.smm_sf(c, m, d), alpha, ws.df,
+                                   ppf_at=_smm_ppf(alpha, m))
     lower, upper = _interval(ws.difference, ws.std_error, crit, "two-sided")
     return _table(family, ws, p_unadj, p_adj, lower, upper, alpha, "dunnett-t3",
                   "two-sided",

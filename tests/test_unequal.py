@@ -492,6 +492,19 @@ def test_critical_values_over_df_against_direct_quantiles(family, param, lo, hi)
     np.testing.assert_allclose(got, ref, rtol=1e-9)
 
 
+@pytest.mark.parametrize("ndf", [5, 60, 400])
+def test_critical_values_over_df_with_fast_quantile(ndf):
+    # With ppf_at (direct up to 64 distinct df, interpolated beyond) the values agree
+    # with the regula-falsi path on sf_at and with srange_ppf itself to 1e-9 relative
+    df = np.exp(np.random.default_rng(85).uniform(math.log(2.0), math.log(900.0), ndf))
+    sf_at = lambda c, d: distributions.srange_sf(c, 6, d)  # noqa: E731
+    fast = unequal.critical_values_over_df(
+        sf_at, 0.05, df, ppf_at=lambda d: distributions.srange_ppf(0.95, 6, d))
+    slow = unequal.critical_values_over_df(sf_at, 0.05, df)
+    np.testing.assert_allclose(fast, slow, rtol=1e-9)
+    np.testing.assert_allclose(fast, distributions.srange_ppf(0.95, 6, df), rtol=1e-9)
+
+
 def test_games_howell_quantiles_scipy_many_df():
     # 20 groups -> 190 pairs with distinct df (the interpolated path): the
     # interval half-widths match scipy.stats.studentized_range.ppf at a sample
