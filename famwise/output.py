@@ -13,13 +13,14 @@ from __future__ import annotations
 import os
 import re
 import tempfile
-from typing import Iterable
+from typing import Iterable, Mapping
 
 import pandas as pd
 
 from .errors import FamwiseInputError
 
-__all__ = ["prepare_folder", "write_atomic", "safe_csv_text", "neutralise_cell"]
+__all__ = ["prepare_folder", "write_atomic", "write_files", "safe_csv_text",
+           "neutralise_cell"]
 
 _NUMBER = re.compile(r"^[-+]?(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?$")
 
@@ -90,3 +91,81 @@ def write_atomic(path: str, text: str | bytes) -> None:
             raise FamwiseInputError(
                 f"cannot write {path!r}: {exc.strerror or exc}") from None
         raise
+
+
+def write_files(folder: str, texts: Mapping[str, str | bytes]) -> list[str]:
+    """Write several files into ``folder`` as one set: all of them or none.
+
+    Every file is first written to a temporary file in ``folder`` (the slow
+    part, where an interruption or a full disk usually strikes); only when
+    all are written are they renamed into place.  If anything fails or is
+    interrupted before the last rename, the temporary files are removed, the
+    files this call had already put in place are removed again, and any file
+    they replaced is put back, so the folder holds the old set or the new
+    one, never a mixture or a part.  Returns the paths written.
+
+    Raises
+    ------
+    FamwiseInputError
+        When a file cannot be written (no space, a file-size limit, a
+        read-only place), naming it.
+    """
+    folder = os.fspath(folder)
+    staged: list[tuple[str, str]] = []          # (temporary, final)
+    placed: list[dict] = []                    # renames done or under way
+    try:
+        for name, text in texts.items():
+            path = os.path.join(folder, name)
+            mode = "wb" if isinstance(text, bytes) else "w"
+            try:
+                fd, tmp = tempfile.mkstemp(prefix=".famwise-", suffix=".tmp", dir=folder)
+            except OSError as exc:
+                raise FamwiseInputError(
+                    f"cannot write {path!r}: {exc.strerror or exc}") from None
+            staged.append((tmp, path))
+            try:
+                with os.fdopen(fd, mode, **({} if mode == "wb" else
+                                            {"encoding": "utf-8", "newline": ""})) as fh:
+                    fh.write(text)
+                    fh.flush()
+                    os.fsync(fh.fileno())
+            except OSError as exc:
+                raise FamwiseInputError(
+                    f"cannot write {path!r}: {exc.strerror or exc}") from None
+        for tmp, path in staged:
+            entry = {"tmp": tmp, "path": path, "backup": None, "old_moved": False}
+            placed.append(entry)
+            if os.path.exists(path):
+                fd, entry["backup"] = tempfile.mkstemp(prefix=".famwise-", suffix=".old",
+                                                       dir=folder)
+                os.close(fd)
+                os.replace(path, entry["backup"])
+                entry["old_moved"] = True
+            os.replace(tmp, path)
+    except BaseException as exc:
+        for entry in reversed(placed):
+            try:
+                if not os.path.exists(entry["tmp"]) and os.path.exists(entry["path"]):
+                    os.unlink(entry["path"])            # the new file was in place
+                if entry["old_moved"]:
+                    os.replace(entry["backup"], entry["path"])
+                elif entry["backup"] is not None:
+                    os.unlink(entry["backup"])
+            except OSError:
+                pass
+        for tmp, _ in staged:
+            try:
+                os.unlink(tmp)
+            except OSError:
+                pass
+        if isinstance(exc, OSError):
+            raise FamwiseInputError(f"cannot write into {folder!r}: "
+                                    f"{exc.strerror or exc}") from None
+        raise
+    for entry in placed:
+        if entry["backup"] is not None:
+            try:
+                os.unlink(entry["backup"])
+            except OSError:
+                pass
+    return [path for _, path in staged]
