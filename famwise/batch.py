@@ -63,7 +63,7 @@ import numpy as np
 import pandas as pd
 
 from .adjust import bh, by as by_adjust
-from .errors import FamwiseInputError, FamwiseWarning, did_you_mean
+from .errors import FamwiseInputError, FamwiseWarning
 from .intake import Intake, file_sha256, find_column, read
 from .ledger import Dropped, Ledger
 from .output import prepare_folder, safe_csv_text, write_atomic

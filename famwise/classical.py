@@ -67,10 +67,13 @@ import pandas as pd
 from scipy import stats as _st
 
 from . import adjust as _adjust
+from ._procedure_tools import (_check_alternative, _check_family, _interval,
+                               _offending_contrast, _sided, _t_crit, _t_pvalue)
 from .errors import FamwiseInputError
 from .families import Family
 from .layout import Layout, group_stats
 from .table import comparisons_table
+from .validate import check_alpha
 
 __all__ = ["AnovaTable", "anova_table", "PooledEstimates", "pooled_estimates",
            "lsd", "bonferroni", "sidak", "holm", "tukey_kramer", "scheffe",
@@ -131,39 +134,6 @@ def _summary(layout: Layout) -> _Summary:
     return _Summary(st.n, st.mean, st.var, shift, ss_within, df_error)
 
 
-def _check_alpha(alpha) -> float:
-    try:
-        a = float(alpha)
-    except (TypeError, ValueError):
-        a = np.nan
-    if not 0.0 < a < 1.0:
-        raise FamwiseInputError(f"alpha must be a number in (0, 1), e.g. 0.05; got {alpha!r}")
-    return a
-
-
-def _check_alternative(alternative, allowed, procedure) -> str:
-    if alternative not in allowed:
-        extra = ("" if len(allowed) > 1 else
-                 f"; {procedure} is two-sided only (use 'bonferroni', 'holm' or "
-                 f"'dunnett' for one-sided tests)")
-        raise FamwiseInputError(
-            f"alternative must be one of {{{', '.join(map(repr, allowed))}}}; "
-            f"got {alternative!r}{extra}")
-    return alternative
-
-
-def _check_family(layout: Layout, family) -> Family:
-    if not isinstance(family, Family):
-        raise FamwiseInputError(
-            f"family must be a famwise.families.Family; got {type(family).__name__} "
-            f"(build one with famwise.families.build_family)")
-    if tuple(family.labels) != tuple(layout.labels):
-        raise FamwiseInputError(
-            f"family was built for groups {list(family.labels)} but the layout has "
-            f"{list(layout.labels)}; build the family from layout.labels")
-    return family
-
-
 # --- the pooled estimates common to every procedure ---------------------------
 
 @dataclass(frozen=True)
@@ -190,14 +160,6 @@ class PooledEstimates:
     df: int
     mse: float
     alternative: str
-
-
-def _t_pvalue(t, df, alternative):
-    if alternative == "two-sided":
-        return np.minimum(1.0, 2.0 * _st.t.sf(np.abs(t), df))
-    if alternative == "greater":
-        return _st.t.sf(t, df)
-    return _st.t.cdf(t, df)
 
 
 def pooled_estimates(layout: Layout, family: Family, *,
@@ -240,22 +202,6 @@ def _pooled(s: _Summary, family: Family, alternative: str) -> PooledEstimates:
     return PooledEstimates(est, se, t, p, s.df_error, s.mse, alternative)
 
 
-def _interval(est, se, crit, alternative):
-    """``est -/+ crit * se``; one-sided intervals leave the other end infinite."""
-    half = crit * se
-    if alternative == "two-sided":
-        return est - half, est + half
-    if alternative == "greater":
-        return est - half, np.full_like(est, np.inf)
-    return np.full_like(est, -np.inf), est + half
-
-
-def _t_crit(level_per_test, df, alternative):
-    """t critical value for a per-comparison error ``level_per_test``."""
-    tail = level_per_test / 2.0 if alternative == "two-sided" else level_per_test
-    return _st.t.isf(tail, df)
-
-
 def _table(family, pe, p_adjusted, lower, upper, alpha, procedure, *,
            interval_note, error_rate="familywise", **attrs):
     table = comparisons_table(
@@ -273,14 +219,10 @@ def _table(family, pe, p_adjusted, lower, upper, alpha, procedure, *,
 
 def _setup(layout, family, alpha, alternative, allowed, procedure):
     _check_family(layout, family)
-    alpha = _check_alpha(alpha)
+    alpha = check_alpha(alpha)
     alternative = _check_alternative(alternative, allowed, procedure)
     s = _summary(layout)
     return s, alpha, _pooled(s, family, alternative)
-
-
-def _sided(alternative):
-    return "two-sided" if alternative == "two-sided" else f"one-sided ({alternative})"
 
 
 # --- the one-way ANOVA table ---------------------------------------------------
@@ -597,14 +539,6 @@ def bh(layout: Layout, family: Family, *, alpha: float = 0.05,
                                 f"1 - {r}*alpha/{m}; the guarantee covers the rejected "
                                 f"rows; not simultaneous",
                   error_rate="false discovery rate (not familywise)")
-
-
-def _offending_contrast(family: Family) -> str | None:
-    for name, row in zip(family.names, family.weights):
-        pos, neg = np.flatnonzero(row > 0), np.flatnonzero(row < 0)
-        if not (len(pos) == 1 and len(neg) == 1 and row[pos[0]] == 1 and row[neg[0]] == -1):
-            return name
-    return None
 
 
 def tukey_kramer(layout: Layout, family: Family, *, alpha: float = 0.05,

@@ -24,7 +24,7 @@ import numpy as np
 import pandas as pd
 
 from . import adjust as _adjust
-from ._unequal_common import (_check_family, _check_layout, _fmt, _interval, _offending_contrast,
+from ._procedure_tools import (_check_family, _check_layout, _fmt, _interval, _offending_contrast,
                               _sided, _t_crit, _t_pvalue, _table)
 from .errors import FamwiseInputError
 from .families import Family

@@ -76,7 +76,7 @@ from scipy import stats as _st
 
 from . import adjust as _adjust
 from . import distributions as _dist
-from ._unequal_common import (_check_family, _check_layout, _fmt, _interval,
+from ._procedure_tools import (_check_family, _check_layout, _fmt, _interval,
                               _offending_contrast, _sided, _t_crit, _t_pvalue, _table)
 from .critical import critical_values_over_df
 from .errors import FamwiseInputError

@@ -20,7 +20,6 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from famwise.adjust import bh, by
 from famwise.api import compare
 from famwise.batch import (BATCH_SCHEMA, CENSORED_CAUTION, batch, fdr_screen, folder_name,
                            task_seed)

@@ -16,7 +16,6 @@ Monte Carlo tolerances are stated per test from the binomial standard error.
 """
 
 import itertools
-import warnings
 
 import numpy as np
 import pytest

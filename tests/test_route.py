@@ -6,7 +6,6 @@ DESIGN.md and diagnostics/route.py.
 """
 
 import numpy as np
-import pytest
 
 from famwise.diagnostics import Policy, run_checks
 from famwise.diagnostics.route import choose, crosscheck_procedure

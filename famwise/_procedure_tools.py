@@ -1,4 +1,4 @@
-"""Shared pieces of the unequal-variance procedures (famwise.unequal, famwise.trimmed).
+"""Pieces shared by the closed-form procedures (classical, unequal, trimmed).
 
 Input checks of the layout and family, Student-t p-values and critical
 values, intervals by side, and the one call to
@@ -82,9 +82,22 @@ def _table(family, ws, p_unadj, p_adj, lower, upper, alpha, procedure, alternati
     return table
 
 
-def _offending_contrast(family: Family) -> str:
+def _offending_contrast(family: Family) -> str | None:
+    """Return the first contrast that is not a difference of two groups (or None)."""
     for name, row in zip(family.names, family.weights):
         pos, neg = np.flatnonzero(row > 0), np.flatnonzero(row < 0)
         if not (len(pos) == 1 and len(neg) == 1 and row[pos[0]] == 1 and row[neg[0]] == -1):
             return name
-    return family.names[0]
+    return None
+
+
+def _check_alternative(alternative, allowed, procedure) -> str:
+    """Check ``alternative`` against the sides ``procedure`` offers."""
+    if alternative not in allowed:
+        extra = ("" if len(allowed) > 1 else
+                 f"; {procedure} is two-sided only (use 'bonferroni', 'holm' or "
+                 f"'dunnett' for one-sided tests)")
+        raise FamwiseInputError(
+            f"alternative must be one of {{{', '.join(map(repr, allowed))}}}; "
+            f"got {alternative!r}{extra}")
+    return alternative
