@@ -123,11 +123,12 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"famwise {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
-    p = sub.add_parser("inspect", help="read a file and account for every row",
-                       description="Read a file, account for every row and summarise "
-                                   "each group.", epilog=EXAMPLES,
+    p = sub.add_parser("inspect", help="read a file, account for every row, run the checks",
+                       description="Read a file, account for every row, summarise each "
+                                   "group and run the checks on the data.", epilog=EXAMPLES,
                        formatter_class=argparse.RawDescriptionHelpFormatter)
     _add_data_options(p)
+    p.add_argument("--policy", metavar="FILE", help="check thresholds from a TOML file")
     p.add_argument("--format", choices=("text", "json", "csv"), default="text",
                    help="what to print on standard output (default: text)")
     p.add_argument("--quiet", "-q", action="store_true", help="print warnings only")
@@ -245,27 +246,38 @@ def _read(args):
     return read(args.file, args.response, args.group, **_read_options(args))
 
 
-def _inspection_text(intake, summary) -> str:
+def _inspection_text(ins) -> str:
+    import textwrap
+
+    import pandas as pd
+
     from .textformat import frame_text
-    lines = ["Rows", *intake.ledger.lines(), "", "Groups", frame_text(summary)]
+    checks = pd.DataFrame([(c.name, c.verdict, c.statistic, c.p_value)
+                           for c in ins.findings.checks],
+                          columns=["check", "verdict", "statistic", "p-value"])
+    lines = ["Rows", *ins.ledger.lines(), "", "Groups", frame_text(ins.groups), "",
+             "Checks", frame_text(checks)]
+    lines += [textwrap.fill(f"{c.name}: {c.sentence}", width=100, subsequent_indent="  ")
+              for c in ins.findings.checks if c.verdict != "ok"]
     return "\n".join(lines)
 
 
 def _run_inspect(args) -> int:
-    from .summary import group_summary
-    intake = _read(args)
-    summary = group_summary(intake.layout)
+    from .api import inspect
+    ins = inspect(args.file, args.response, args.group, policy=args.policy,
+                  **_read_options(args))
     if args.quiet:
         return 0
     if args.format == "json":
-        print(json.dumps({"ledger": intake.ledger.to_dict(),
-                          "dropped": intake.ledger.to_frame().to_dict(orient="records"),
-                          "groups": summary.to_dict(orient="records")}, indent=2))
+        print(json.dumps({"ledger": ins.ledger.to_dict(),
+                          "dropped": ins.ledger.to_frame().to_dict(orient="records"),
+                          "groups": ins.groups.to_dict(orient="records"),
+                          "checks": ins.findings.to_records()}, indent=2, default=str))
     elif args.format == "csv":
         from .output import safe_csv_text
-        sys.stdout.write(safe_csv_text(summary))
+        sys.stdout.write(safe_csv_text(ins.groups))
     else:
-        print(_inspection_text(intake, summary))
+        print(_inspection_text(ins))
     return 0
 
 
