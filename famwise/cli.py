@@ -413,6 +413,9 @@ def main(argv=None) -> int:
     warnings.showwarning = _show_warning
     try:
         with warnings.catch_warnings():
+            # famwise's own warnings speak to the user; numerical warnings
+            # from inside numpy or scipy do not, and are not shown.
+            warnings.simplefilter("ignore")
             warnings.simplefilter("always", FamwiseWarning)
             return int(args.run(args) or 0)
     except FamwiseInputError as exc:

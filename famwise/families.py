@@ -116,7 +116,8 @@ def vs_reference(labels: Sequence[str], reference: str) -> Family:
     """Return the family of every other group against ``reference``."""
     if reference is None:
         raise FamwiseInputError(
-            "family 'vs-reference' needs a reference group; pass reference=LABEL")
+            "family 'vs-reference' needs a reference group: reference=LABEL "
+            "(--reference LABEL on the command line)")
     r = _find_label(labels, reference, "reference")
     others = [i for i in range(len(labels)) if i != r]
     return _pairwise("vs-reference", labels, [(i, r) for i in others], reference=r)

@@ -114,7 +114,7 @@ def _validate(layout, family, *, alpha, resamples, max_resamples, seed, n_jobs,
     if n_jobs is not None and (isinstance(n_jobs, (bool, np.bool_))
                                or not isinstance(n_jobs, (int, np.integer)) or n_jobs == 0):
         raise FamwiseInputError(
-            f"`n_jobs` must be None or a non-zero integer (-1: all cores); got {n_jobs!r}")
+            f"n_jobs (--jobs) must be a non-zero whole number (-1: all cores); got {n_jobs!r}")
     backend = _one_of("backend", backend, engine.BACKENDS)
     if scheduler is not None and backend != "dask":
         raise FamwiseInputError(

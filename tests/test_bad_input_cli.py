@@ -218,7 +218,7 @@ CASES = [
     ("zero-jobs",
      lambda d: ["compare", _w(d, "g.csv", GOOD), *RG, "-p", "permutation-maxt",
                 "--resamples", "99", "--jobs", "0"], 2,
-     ["must be None or a non-zero integer", "got 0"], "error"),
+     ["n_jobs (--jobs) must be a non-zero whole number", "got 0"], "error"),
     ("out-is-a-file",
      lambda d: ["compare", _w(d, "g.csv", GOOD), *RG, "--out", _w(d, "taken", "x")], 2,
      ["output path", "taken", "exists and is not a folder"], "error"),

@@ -3,15 +3,14 @@
 Files (our names): ``comparisons.csv``, ``groups.csv``, ``ledger.csv`` (rows
 set aside), ``decision.json``, ``summary.txt`` and ``report.html``.  Every
 file is rendered in memory first, so a failure while rendering writes
-nothing; each is then written atomically (temporary file, rename).  A folder
+nothing; the set is then written all or none (temporary files, then renames;
+see :func:`famwise.output.write_files`).  A folder
 that already holds any of them is refused unless ``force``.
 """
 
 from __future__ import annotations
 
-import os
-
-from ..output import prepare_folder, safe_csv_text, write_atomic
+from ..output import prepare_folder, safe_csv_text, write_files
 
 __all__ = ["OUTPUT_FILES", "render_files", "save"]
 
@@ -36,9 +35,5 @@ def save(result, folder, force: bool = False) -> list[str]:
     """Write every output file of ``result`` into ``folder``; return the paths."""
     folder = prepare_folder(folder, OUTPUT_FILES, force=force)
     texts = render_files(result)
-    paths = []
-    for name in OUTPUT_FILES:
-        path = os.path.join(folder, name)
-        write_atomic(path, texts[name])
-        paths.append(path)
-    return paths
+    # All the files or none: an interruption leaves the folder as it was.
+    return write_files(folder, {name: texts[name] for name in OUTPUT_FILES})
