@@ -8,9 +8,12 @@
    permutation is liberal when small groups carry large spreads);
 2. shape fine, spreads unequal -> unequal-variance procedures: Games–Howell
    for all pairs with groups of ``policy.games_howell_min_n`` or more,
-   otherwise Dunnett's T3 unless a quick calibration at the observed sizes and
-   SDs shows Games–Howell within alpha + 2 Monte Carlo SE; Welch–Dunnett
-   against a reference; Dunnett's T3 for contrasts;
+   otherwise Dunnett's T3 (with ``policy.calibrate_candidates``, unless a
+   quick calibration at the observed sizes and SDs shows Games–Howell within
+   alpha + 2 Monte Carlo SE); Welch–Dunnett against a reference; Dunnett's
+   T3 for contrasts.  Unbalanced designs with a group under
+   ``games_howell_min_n`` take this route even when the spread checks pass
+   (``policy.welch_when_small_unbalanced``);
 3. shape and spread fine -> classical: Tukey–Kramer for all pairs, Dunnett
    against a reference, and for contrasts the shorter of Šidák and Scheffé.
 
@@ -185,6 +188,16 @@ def choose(findings: Findings, family: Family, layout: Layout, policy: Policy | 
                      tuple(against), tuple(warnings), None,
                      crosscheck_procedure(procedure, family))
     reasons, alternatives, calibration = [], [], None
+    n = layout.stats.n
+    fragile = (policy.welch_when_small_unbalanced and not poor and not unequal
+               and n.min() < policy.games_howell_min_n
+               and n.max() / n.min() >= policy.unbalanced_ratio)
+    if fragile:
+        unequal = [f"The design is unbalanced (n from {n.min()} to {n.max()}) and the smallest "
+                   f"group has fewer than {policy.games_howell_min_n} observations: the spread "
+                   f"checks have little power there, and pooled procedures are badly liberal "
+                   f"if the small groups have the larger spreads, so famwise does not rely "
+                   f"on a common variance."]
     if poor:
         route = "resample"
         reasons.append("The residuals are far from normal. " + " ".join(poor))
@@ -211,7 +224,8 @@ def choose(findings: Findings, family: Family, layout: Layout, policy: Policy | 
                                             "question (a trimmed mean, not the mean)"))
     elif unequal:
         route = "unequal"
-        reasons.append("The residuals look close enough to normal, but the spreads differ. "
+        reasons.append(" ".join(unequal) if fragile else
+                       "The residuals look close enough to normal, but the spreads differ. "
                        + " ".join(unequal))
         if family.kind == "all-pairs":
             proc, why, calibration, alts = _unequal_all_pairs(layout, policy, alpha, seed)

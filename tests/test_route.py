@@ -6,6 +6,7 @@ DESIGN.md and diagnostics/route.py.
 """
 
 import numpy as np
+import pytest
 
 from famwise.diagnostics import Policy, run_checks
 from famwise.diagnostics.route import choose, crosscheck_procedure
@@ -139,3 +140,26 @@ def test_route_serialises():
     r = route_of(layout(13, [20] * 3, [1] * 3))
     d = r.to_dict()
     assert d["procedure"] == "tukey-kramer" and isinstance(d["alternatives"], list)
+
+
+def test_small_unbalanced_designs_do_not_rely_on_a_common_variance():
+    lay = layout(16, [4, 6, 8, 10, 20, 30], [1] * 6)   # shape and spread checks pass
+    r = route_of(lay)
+    assert (r.route, r.procedure) == ("unequal", "dunnett-t3")
+    assert "little power" in " ".join(r.reasons)
+    ref = route_of(lay, vs_reference(lay.labels, "g5"))
+    assert ref.procedure == "welch-dunnett"
+    assert run_checks(lay, NO_CAL).worst("spread") != "violated"
+    off = route_of(lay, policy=NO_CAL.replace(welch_when_small_unbalanced=False))
+    assert off.route == "classical"
+
+
+def test_quick_calibration_can_decide_between_games_howell_and_t3():
+    lay = layout(15, [4, 6, 8, 10, 20, 30], [4, 3, 2, 1.5, 1, 1])
+    r = route_of(lay, policy=Policy(calibrate_candidates=True, calibration_replicates=2000))
+    assert r.procedure in ("dunnett-t3", "games-howell")
+    est = r.calibration["estimates"]
+    assert set(est) == {"games-howell", "dunnett-t3"}
+    assert r.calibration["limit"] == pytest.approx(0.05 + 2 * est["games-howell"]["se"])
+    # In this design Games-Howell is liberal (about 0.065; unequal-variance tests).
+    assert r.procedure == "dunnett-t3"
