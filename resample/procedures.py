@@ -239,6 +239,23 @@ def _mc(p, b, alpha):
     return mc_error, unsettled
 
 
+def _centred(layout: Layout) -> Layout:
+    """The same data less their median.
+
+    Every statistic here is a contrast (weights summing to zero) or a
+    spread, so the shift changes nothing but rounding: values near 1e12
+    would otherwise give group means rounded to about 1e-4 before any
+    difference is taken.  x - median is exact for values within a factor of
+    two of the median (Sterbenz).
+    """
+    shift = float(np.median(layout.values))
+    if shift == 0.0:
+        return layout
+    return Layout(values=layout.values - shift, codes=layout.codes, labels=layout.labels,
+                  rows=layout.rows, response=layout.response, group=layout.group,
+                  source=layout.source)
+
+
 def _run(procedure, method, stepdown, layout, family, *, alpha, resamples, seed,
          n_jobs, backend, statistic, trim, alternative, chunk_size, progress,
          scheduler, max_resamples, statistics_allowed) -> pd.DataFrame:
@@ -248,6 +265,7 @@ def _run(procedure, method, stepdown, layout, family, *, alpha, resamples, seed,
                      statistics_allowed=statistics_allowed, trim=trim,
                      alternative=alternative, chunk_size=chunk_size,
                      progress=progress, scheduler=scheduler)
+    layout = _centred(layout)
     obs = observed_statistics(layout, family, opts.statistic, opts.alternative, opts.trim)
     build = _permutation_problem if method == "permutation" else _bootstrap_problem
     problem = build(layout, family, obs, opts)

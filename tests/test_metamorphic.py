@@ -115,23 +115,8 @@ def test_shift_by_1e12_changes_nothing(baselines, d):
     # the shift is exact on this grid (the premise of the test)
     assert all(np.array_equal(s - 1e12, g) for s, g in zip(shifted, groups))
     layout = Layout.from_groups(shifted, labels)
-    for p in CLOSED_FORM:
+    for p in PROCEDURES:
         _same(base[p], _run(p, layout), name=f"{p} +1e12")
-
-
-@pytest.mark.parametrize("d", DESIGNS)
-def test_shift_by_1e12_keeps_resampling_decisions(baselines, d):
-    """The resampling procedures' p-values and decisions survive the shift.
-    (Their estimates currently come from group means held near 1e12, which
-    carry an absolute rounding of about 1e-4; reported to the owners of
-    famwise.resample, so the estimate columns are not asserted here.)"""
-    labels, groups, base = baselines[d]
-    layout = Layout.from_groups([g + 1e12 for g in groups], labels)
-    for p in RESAMPLING:
-        got = _run(p, layout)
-        np.testing.assert_allclose(got["p_adjusted"], base[p]["p_adjusted"], atol=PTOL,
-                                   err_msg=p)
-        assert list(got["reject"]) == list(base[p]["reject"]), p
 
 
 @pytest.mark.parametrize("factor", [1e-6, 1e6])
