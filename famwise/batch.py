@@ -364,6 +364,8 @@ class _Outcome:
     ledger: Ledger | None = field(repr=False, default=None)
     files: dict | None = field(repr=False, default=None)
     seconds: float = 0.0
+    row: dict | None = field(repr=False, default=None)      # summary-table cells
+    record: dict | None = field(repr=False, default=None)   # batch.json pieces
 
 
 def task_seed(root: np.random.SeedSequence, index: int) -> int:
@@ -433,8 +435,27 @@ def _run_task(task: _Task, source: str, group: str, notes, options: dict, render
         if render:
             from .report.files import render_files
             files = render_files(result)
+        row, record = _task_summary(result, name, p)
     return _Outcome(task.index, "ok", "", result, name, p, result.ledger, files,
-                    time.perf_counter() - start)
+                    time.perf_counter() - start, row, record)
+
+
+def _task_summary(result, omnibus, omnibus_p) -> tuple[dict, dict]:
+    """The summary-table cells and record pieces of one task, made in the worker
+    (so the parent's serial share of a batch stays small)."""
+    t, led, route = result.comparisons, result.ledger, result.decision.route
+    unsettled = int(t["unsettled"].sum()) if "unsettled" in t else 0
+    cc = result.decision.crosscheck
+    row = dict(route=route["route"], procedure=route["procedure"], omnibus=omnibus,
+               omnibus_p=omnibus_p, groups=result.layout.k, n_read=led.read, n_used=led.used,
+               n_set_aside=len(led.dropped),
+               set_aside=", ".join(f"{v} {k}" for k, v in led.counts().items()),
+               comparisons=len(t), declared_different=int(t["reject"].sum()),
+               smallest_p_adjusted=float(t["p_adjusted"].min()), unsettled=unsettled,
+               crosscheck_agree=cc["agree"] if cc else None)
+    record = dict(ledger=led.to_dict(), route=route, crosscheck=cc,
+                  resampling=result.decision.resampling, command=result.decision.command)
+    return row, record
 
 
 class _nothing:
@@ -793,21 +814,11 @@ def _tabulate(tasks, outcomes, stratified, fdr, alpha):
                "reason": o.reason, "folder": task.folder if res is not None else None,
                "seed": task.seed, "seconds": o.seconds}
         if res is not None:
-            t = res.comparisons
-            route = res.decision.route
-            unsettled = int(t["unsettled"].sum()) if "unsettled" in t else 0
-            cc = res.decision.crosscheck
-            row.update(route=route["route"], procedure=route["procedure"],
-                       omnibus=o.omnibus, omnibus_p=o.omnibus_p, groups=res.layout.k,
-                       n_read=led.read, n_used=led.used, n_set_aside=len(led.dropped),
-                       set_aside=", ".join(f"{v} {k}" for k, v in led.counts().items()),
-                       comparisons=len(t), declared_different=int(t["reject"].sum()),
-                       smallest_p_adjusted=float(t["p_adjusted"].min()),
-                       unsettled=unsettled,
-                       crosscheck_agree=cc["agree"] if cc else None)
+            route = o.record["route"]
+            unsettled = o.row["unsettled"]
+            row.update(o.row)
             results[(task.response, task.stratum)] = res
-            rec.update(ledger=led.to_dict(), route=route, crosscheck=cc,
-                       resampling=res.decision.resampling, command=res.decision.command)
+            rec.update(o.record)
             where = task.response + (f" / {task.stratum}" if task.stratum is not None else "")
             for w in route["warnings"]:
                 notices.append(f"{where}: {w}")

