@@ -304,11 +304,11 @@ def run_resamples(problem: ResamplingProblem, *, resamples: int,
                 done[i] = ch
     tasks = [(i, s, kernels.seed_state(chunk_seed(seed, i)))
              for i, s in enumerate(sizes) if i not in done]
-    todo = sum(s for _, s, _ in tasks)
+    to_run = sum(s for _, s, _ in tasks)
     import joblib
     workers = 1 if backend == "dask" else max(1, joblib.effective_n_jobs(n_jobs))
-    estimate = _SECONDS_PER_ELEMENT * problem.n_elements * todo / min(workers, max(len(tasks), 1))
-    bar = _Progress(todo, _want_progress(progress, estimate))
+    estimate = _SECONDS_PER_ELEMENT * problem.n_elements * to_run / min(workers, max(len(tasks), 1))
+    bar = _Progress(to_run, _want_progress(progress, estimate))
     start = time.perf_counter()
 
     def collect(index, result):
