@@ -48,6 +48,23 @@ class _Parser(argparse.ArgumentParser):
                   if " " in self.prog else f"famwise: error: {message} (see famwise --help)\n")
 
 
+def _add_file_options(p: argparse.ArgumentParser) -> None:
+    """How to read the file: sheet, delimiter, decimal mark, encoding, labels."""
+    p.add_argument("--sheet", metavar="NAME", help="Excel sheet (default: the first)")
+    p.add_argument("--delimiter", metavar="CHAR", help="field delimiter (default: detected)")
+    p.add_argument("--decimal-comma", action="store_true",
+                   help="numbers use a decimal comma (3,7)")
+    p.add_argument("--encoding", metavar="NAME", help="text encoding (default UTF-8)")
+    p.add_argument("--merge-spellings", action="store_true",
+                   help="merge labels that differ only by case or spacing")
+
+
+def _file_options(args) -> dict:
+    return dict(sheet=args.sheet, delimiter=args.delimiter,
+                decimal="," if args.decimal_comma else ".", encoding=args.encoding,
+                merge_spellings=args.merge_spellings)
+
+
 def _add_data_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("file", help="CSV/TSV/TXT, Excel (.xlsx) or Parquet file")
     p.add_argument("--response", "-r", metavar="COL", help="column of measured values")
@@ -56,15 +73,9 @@ def _add_data_options(p: argparse.ArgumentParser) -> None:
                    help="wide layout: one column per group")
     p.add_argument("--columns", metavar="A,B,...",
                    help="wide layout: the group columns to use (comma-separated)")
-    p.add_argument("--sheet", metavar="NAME", help="Excel sheet (default: the first)")
-    p.add_argument("--delimiter", metavar="CHAR", help="field delimiter (default: detected)")
-    p.add_argument("--decimal-comma", action="store_true",
-                   help="numbers use a decimal comma (3,7)")
-    p.add_argument("--encoding", metavar="NAME", help="text encoding (default UTF-8)")
     p.add_argument("--order", metavar="A,B,...",
                    help="group order (default: order of first appearance)")
-    p.add_argument("--merge-spellings", action="store_true",
-                   help="merge labels that differ only by case or spacing")
+    _add_file_options(p)
     p.add_argument("--exclude-rows", metavar="N,M,...",
                    help="set aside these file rows (listed in the ledger as excluded)")
 
@@ -198,13 +209,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="address of a running dask.distributed scheduler (with --backend dask)")
     p.add_argument("--policy", metavar="FILE", help="routing thresholds from a TOML file")
     p.add_argument("--no-crosscheck", action="store_true", help="skip the second route")
-    p.add_argument("--sheet", metavar="NAME", help="Excel sheet (default: the first)")
-    p.add_argument("--delimiter", metavar="CHAR", help="field delimiter (default: detected)")
-    p.add_argument("--decimal-comma", action="store_true",
-                   help="numbers use a decimal comma (3,7)")
-    p.add_argument("--encoding", metavar="NAME", help="text encoding (default UTF-8)")
-    p.add_argument("--merge-spellings", action="store_true",
-                   help="merge labels that differ only by case or spacing")
+    _add_file_options(p)
     p.add_argument("--out", "-o", metavar="DIR",
                    help="write batch.csv, batch.json and one folder per task to DIR")
     p.add_argument("--force", action="store_true", help="replace files already in DIR")
@@ -234,11 +239,8 @@ def _split(text):
 
 
 def _read_options(args) -> dict:
-    return dict(wide=args.wide, columns=_split(args.columns), sheet=args.sheet,
-                delimiter=args.delimiter, decimal="," if args.decimal_comma else ".",
-                encoding=args.encoding, order=_split(args.order),
-                merge_spellings=args.merge_spellings,
-                exclude_rows=_split(args.exclude_rows) or ())
+    return dict(wide=args.wide, columns=_split(args.columns), order=_split(args.order),
+                exclude_rows=_split(args.exclude_rows) or (), **_file_options(args))
 
 
 def _read(args):
@@ -355,9 +357,7 @@ def _run_batch(args) -> int:
                    resamples=_resamples(args.resamples), seed=args.seed, n_jobs=args.jobs,
                    backend=args.backend, scheduler=args.scheduler, policy=args.policy,
                    crosscheck=not args.no_crosscheck, out=args.out, force=args.force,
-                   command=command, sheet=args.sheet, delimiter=args.delimiter,
-                   decimal="," if args.decimal_comma else ".", encoding=args.encoding,
-                   merge_spellings=args.merge_spellings)
+                   command=command, **_file_options(args))
     if not args.quiet:
         if args.format == "json":
             print(result.to_json())

