@@ -89,6 +89,10 @@ CATALOGUE: dict[str, ProcedureInfo] = {p.name: p for p in [
     ProcedureInfo("bootstrap-stepdown", "famwise.resample.procedures",
                   "bootstrap_stepdown", "resample", _ALL,
                   "Step-down version of the bootstrap max-t."),
+    ProcedureInfo("bootstrap-hall", "famwise.resample.procedures",
+                  "bootstrap_hall", "resample", _ALL,
+                  "Bootstrap max-t of Welch statistics with Hall's skewness "
+                  "correction; skewed data with small groups."),
     ProcedureInfo("bh", "famwise.classical", "bh", "fdr", _ALL,
                   "Benjamini-Hochberg false discovery rate (not familywise "
                   "error) on pooled t; exploratory families."),

@@ -41,8 +41,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-__all__ = ["permutation_chunk", "permutation_labels_chunk", "bootstrap_chunk", "bootstrap_trimmed_chunk",
-           "seed_state"]
+__all__ = ["permutation_chunk", "permutation_labels_chunk", "bootstrap_chunk",
+           "bootstrap_hall_chunk", "bootstrap_trimmed_chunk", "seed_state"]
 
 _MULT = np.uint64(6364136223846793005)
 _M32 = np.uint64(0xFFFFFFFF)
@@ -85,29 +85,13 @@ def _pcg_out(old):
     return ((xs >> rot) | (xs << ((_S32 - rot) & _U31))) & _M32
 
 
-@njit(cache=True, nogil=True)
-def _family_stats(mean, vm, row_ptr, col, w, w2, se2_floor, sign, two_sided,
-                  thr, order, ustat, hits_marginal, hits_stepdown, stepdown):
-    """Statistics of the whole family for one resample; returns the max.
-
-    T_j = sum_e w_e mean[col_e] / sqrt(max(sum_e w_e^2 vm[col_e], floor_j)),
-    u_j = |T_j| or sign * T_j; counts u_j >= thr_j; then, if ``stepdown``,
-    the successive maxima from the lowest-ranked comparison upwards.
-    """
-    m = row_ptr.size - 1
+@njit(cache=True, nogil=True, inline="always")
+def _tally(ustat, thr, order, hits_marginal, hits_stepdown, stepdown):
+    """Count u_j >= thr_j, then, if ``stepdown``, the successive maxima from
+    the lowest-ranked comparison upwards; return the max of ``ustat``."""
+    m = ustat.size
     for j in range(m):
-        est = 0.0
-        v2 = 0.0
-        for e in range(row_ptr[j], row_ptr[j + 1]):
-            g = col[e]
-            est += w[e] * mean[g]
-            v2 += w2[e] * vm[g]
-        if v2 < se2_floor[j]:
-            v2 = se2_floor[j]
-        t = est / np.sqrt(v2)
-        u = abs(t) if two_sided else sign * t
-        ustat[j] = u
-        if u >= thr[j]:
+        if ustat[j] >= thr[j]:
             hits_marginal[j] += 1
     run = -np.inf
     if stepdown:
@@ -124,6 +108,62 @@ def _family_stats(mean, vm, row_ptr, col, w, w2, se2_floor, sign, two_sided,
             if ustat[j] > run:
                 run = ustat[j]
     return run
+
+
+@njit(cache=True, nogil=True)
+def _family_stats(mean, vm, row_ptr, col, w, w2, se2_floor, sign, two_sided,
+                  thr, order, ustat, hits_marginal, hits_stepdown, stepdown):
+    """Statistics of the whole family for one resample; returns the max.
+
+    T_j = sum_e w_e mean[col_e] / sqrt(max(sum_e w_e^2 vm[col_e], floor_j)),
+    u_j = |T_j| or sign * T_j; then :func:`_tally`.
+    """
+    m = row_ptr.size - 1
+    for j in range(m):
+        est = 0.0
+        v2 = 0.0
+        for e in range(row_ptr[j], row_ptr[j + 1]):
+            g = col[e]
+            est += w[e] * mean[g]
+            v2 += w2[e] * vm[g]
+        if v2 < se2_floor[j]:
+            v2 = se2_floor[j]
+        t = est / np.sqrt(v2)
+        ustat[j] = abs(t) if two_sided else sign * t
+    return _tally(ustat, thr, order, hits_marginal, hits_stepdown, stepdown)
+
+
+@njit(cache=True, nogil=True)
+def _family_stats_hall(mean, vm, c3, a_max, row_ptr, col, w, w2, w3, se2_floor, sign,
+                       two_sided, thr, order, ustat, hits_marginal, hits_stepdown,
+                       stepdown):
+    """As :func:`_family_stats` with Hall's transformation of each Welch t.
+
+    ``c3[g]`` is the third cumulant of group g's mean; a_j = sum_e w_e^3
+    c3[col_e] / v2_j^1.5, bounded by ``a_max``, and T_j = t + a t^2/3 +
+    a^2 t^3/27 + a/6 (:mod:`famwise.resample.statistics`).
+    """
+    m = row_ptr.size - 1
+    for j in range(m):
+        est = 0.0
+        v2 = 0.0
+        k3 = 0.0
+        for e in range(row_ptr[j], row_ptr[j + 1]):
+            g = col[e]
+            est += w[e] * mean[g]
+            v2 += w2[e] * vm[g]
+            k3 += w3[e] * c3[g]
+        if v2 < se2_floor[j]:
+            v2 = se2_floor[j]
+        t = est / np.sqrt(v2)
+        a = k3 / (v2 * np.sqrt(v2))
+        if a > a_max:
+            a = a_max
+        elif a < -a_max:
+            a = -a_max
+        t = t + a * t * t / 3.0 + a * a * t * t * t / 27.0 + a / 6.0
+        ustat[j] = abs(t) if two_sided else sign * t
+    return _tally(ustat, thr, order, hits_marginal, hits_stepdown, stepdown)
 
 
 @njit(cache=True, nogil=True)
@@ -336,6 +376,77 @@ def bootstrap_chunk(r, start, n, pooled, row_ptr, col, w, w2, se2_floor, sign,
         maxima[b] = _family_stats(mean, vm, row_ptr, col, w, w2, se2_floor, sign,
                                   two_sided, thr, order, ustat, hits_marginal,
                                   hits_stepdown, stepdown)
+    return maxima, hits_marginal, hits_stepdown
+
+
+@njit(cache=True, nogil=True)
+def bootstrap_hall_chunk(r, start, n, ssq_floor, a_max, row_ptr, col, w, w2, w3, se2_floor, sign,
+                         two_sided, thr, order, stepdown, size, rng_state):
+    """Run ``size`` bootstrap resamples with Hall-transformed Welch statistics.
+
+    As :func:`bootstrap_chunk` (``r``: residuals about each group's mean),
+    and each resample also re-estimates the pooled skewness from its own
+    third moments, gamma* = sum_g m3_g (n_g / ssq_g)^1.5 / N, so the
+    statistic is bootstrapped with its skewness estimate
+    (:func:`famwise.resample.statistics.pooled_skewness`).  A group whose
+    sum of squares is at most ``ssq_floor[g]`` counts as without spread.
+    """
+    k = n.size
+    m = row_ptr.size - 1
+    big_n = r.size
+    maxima = np.empty(size)
+    hits_marginal = np.zeros(m, dtype=np.int64)
+    hits_stepdown = np.zeros(m, dtype=np.int64)
+    ustat = np.empty(m)
+    mean = np.empty(k)
+    vm = np.empty(k)
+    c3 = np.empty(k)
+    sd3 = np.empty(k)
+    thresh = np.empty(k, dtype=np.uint64)
+    for g in range(k):
+        bound = np.uint64(n[g])
+        thresh[g] = (_TWO32 - bound) % bound
+    state, inc = _pcg_init(rng_state[0], rng_state[1])
+    for b in range(size):
+        gamma = 0.0
+        for g in range(k):
+            bound = np.uint64(n[g])
+            tg = thresh[g]
+            base = start[g]
+            acc = 0.0
+            acc2 = 0.0
+            acc3 = 0.0
+            for _ in range(n[g]):
+                old = state
+                state = old * _MULT + inc
+                prod = _pcg_out(old) * bound
+                while (prod & _M32) < tg:
+                    old = state
+                    state = old * _MULT + inc
+                    prod = _pcg_out(old) * bound
+                v = r[base + np.int64(prod >> _S32)]
+                acc += v
+                acc2 += v * v
+                acc3 += v * v * v
+            ng = np.float64(n[g])
+            mg = acc / ng
+            ssq = acc2 - acc * mg
+            mean[g] = mg
+            if ssq > ssq_floor[g]:
+                # sum (v - mg)^3 = S3 - 3 mg S2 + 2 n mg^3
+                m3 = acc3 - 3.0 * mg * acc2 + 2.0 * ng * mg * mg * mg
+                gamma += m3 * (ng / ssq) * np.sqrt(ng / ssq)
+                var = ssq / (ng - 1.0)
+            else:
+                var = 0.0
+            vm[g] = var / ng
+            sd3[g] = var * np.sqrt(var) / (ng * ng)
+        gamma /= big_n
+        for g in range(k):
+            c3[g] = gamma * sd3[g]
+        maxima[b] = _family_stats_hall(mean, vm, c3, a_max, row_ptr, col, w, w2, w3,
+                                       se2_floor, sign, two_sided, thr, order, ustat,
+                                       hits_marginal, hits_stepdown, stepdown)
     return maxima, hits_marginal, hits_stepdown
 
 

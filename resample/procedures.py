@@ -29,11 +29,11 @@ from ..families import Family
 from ..layout import Layout
 from ..table import comparisons_table
 from . import engine
-from .statistics import (ALTERNATIVES, family_weights, observed_statistics,
-                         trimmed_terms)
+from .statistics import (ALTERNATIVES, HALL_A_MAX, family_weights, hall_inverse,
+                         observed_statistics, ssq_floor, trimmed_terms)
 
 __all__ = ["permutation_maxt", "permutation_stepdown", "bootstrap_maxt",
-           "bootstrap_stepdown", "UnsettledWarning", "AUTO_START",
+           "bootstrap_stepdown", "bootstrap_hall", "UnsettledWarning", "AUTO_START",
            "DEFAULT_MAX_RESAMPLES", "MC_LEVEL"]
 
 AUTO_START = 999                 # first B of resamples="auto"
@@ -212,8 +212,13 @@ def _bootstrap_problem(layout, family, obs, opts) -> engine.ResamplingProblem:
             res = values - values.mean()
             parts.append(res - res.mean())           # null imposed: mean exactly 0
         r = np.concatenate(parts)
-        args = (r, start, n, opts.statistic == "pooled") + tail
-        kernel = "bootstrap_chunk"
+        if opts.statistic == "welch-hall":
+            args = (r, start, n, ssq_floor(layout), HALL_A_MAX, fw.row_ptr, fw.col, fw.w,
+                    fw.w2, fw.w3) + tail[4:]
+            kernel = "bootstrap_hall_chunk"
+        else:
+            args = (r, start, n, opts.statistic == "pooled") + tail
+            kernel = "bootstrap_chunk"
     return engine.ResamplingProblem(kernel, args, layout.n_total, family.m)
 
 
@@ -293,10 +298,15 @@ def _run(procedure, method, stepdown, layout, family, *, alpha, resamples, seed,
     # Simultaneous intervals from the (1 - alpha) quantile of the max statistic.
     crit = run.critical_value(opts.alpha)
     est, se = obs.estimate, obs.std_error
+    if obs.skew is None:
+        t_hi, t_lo = crit, -crit
+    else:
+        # Invert the monotone transformation: |T(theta)| <= c for
+        # t = (est - theta) / se between hall_inverse(-c) and hall_inverse(c).
+        t_hi, t_lo = hall_inverse(crit, obs.skew), hall_inverse(-crit, obs.skew)
     with np.errstate(invalid="ignore"):
-        half = crit * se
-    lower = est - half if opts.alternative != "less" else np.full(family.m, -np.inf)
-    upper = est + half if opts.alternative != "greater" else np.full(family.m, np.inf)
+        lower = est - t_hi * se if opts.alternative != "less" else np.full(family.m, -np.inf)
+        upper = est - t_lo * se if opts.alternative != "greater" else np.full(family.m, np.inf)
     table = comparisons_table(
         family, difference=est, std_error=se, df=np.inf, statistic=obs.statistic,
         p_unadjusted=p_marginal, p_adjusted=p_adjusted, ci_lower=lower,
@@ -309,6 +319,7 @@ def _run(procedure, method, stepdown, layout, family, *, alpha, resamples, seed,
         "stepdown": bool(stepdown),
         "statistic": opts.statistic,
         "trim": opts.trim if opts.statistic == "yuen" else None,
+        "pooled_skewness": obs.gamma,
         "alternative": opts.alternative,
         "resamples": int(b),
         "auto": bool(opts.auto),
@@ -409,20 +420,27 @@ _REFERENCES = """
        hypothesis testing. *Biometrics* 47:757-762. doi:10.2307/2532163
     .. [5] Yuen, K. K. (1974). The two-sample trimmed t for unequal population
        variances. *Biometrika* 61:165-170. doi:10.1093/biomet/61.1.165
+    .. [6] Hall, P. (1992). On the removal of skewness by transformation.
+       *J. R. Statist. Soc. B* 54:221-228.
+       doi:10.1111/j.2517-6161.1992.tb01876.x
 """
 
 _PERM_STAT = ('"welch" (default; Welch-studentized, valid under unequal spread '
               'asymptotically [3]) or "pooled" (pooled-variance t).')
-_BOOT_STAT = ('"welch" (default), "pooled", or "yuen" (trimmed means with '
-              'winsorized variances [5], trimming ``trim``).')
+_BOOT_STAT = ('"welch" (default), "pooled", "yuen" (trimmed means with '
+              'winsorized variances [5], trimming ``trim``), or "welch-hall" '
+              '(Welch t with Hall\'s skewness-removing transformation [6], '
+              'as in :func:`bootstrap_hall`).')
 _TRIM = """
     trim : float, default=0.2
         Proportion trimmed from each end of each group with ``statistic="yuen"``."""
 
 
 def _doc(summary, body, stat_doc, extra_param=""):
-    params = (_COMMON_PARAMETERS.replace("{stat_doc}", stat_doc)
-              .replace("{extra_param}", extra_param))
+    params = _COMMON_PARAMETERS
+    if stat_doc is None:            # the procedure fixes its statistic
+        params = params.replace('    statistic : str, default="welch"\n        {stat_doc}\n', "")
+    params = params.replace("{stat_doc}", stat_doc or "").replace("{extra_param}", extra_param)
     return summary + "\n" + body + params + _REFERENCES
 
 
@@ -459,7 +477,7 @@ def bootstrap_maxt(layout, family, *, alpha=0.05, resamples=9999, seed=None,
                 backend=backend, statistic=statistic, trim=trim,
                 alternative=alternative, chunk_size=chunk_size, progress=progress,
                 scheduler=scheduler, max_resamples=max_resamples,
-                statistics_allowed=("welch", "pooled", "yuen"))
+                statistics_allowed=("welch", "pooled", "yuen", "welch-hall"))
 
 
 def bootstrap_stepdown(layout, family, *, alpha=0.05, resamples=9999, seed=None,
@@ -471,7 +489,19 @@ def bootstrap_stepdown(layout, family, *, alpha=0.05, resamples=9999, seed=None,
                 backend=backend, statistic=statistic, trim=trim,
                 alternative=alternative, chunk_size=chunk_size, progress=progress,
                 scheduler=scheduler, max_resamples=max_resamples,
-                statistics_allowed=("welch", "pooled", "yuen"))
+                statistics_allowed=("welch", "pooled", "yuen", "welch-hall"))
+
+
+def bootstrap_hall(layout, family, *, alpha=0.05, resamples=9999, seed=None,
+                   n_jobs=1, backend="threads", alternative="two-sided",
+                   chunk_size=None, progress=None, scheduler=None,
+                   max_resamples=DEFAULT_MAX_RESAMPLES):
+    return _run("bootstrap-hall", "bootstrap", False, layout, family,
+                alpha=alpha, resamples=resamples, seed=seed, n_jobs=n_jobs,
+                backend=backend, statistic="welch-hall", trim=0.2,
+                alternative=alternative, chunk_size=chunk_size, progress=progress,
+                scheduler=scheduler, max_resamples=max_resamples,
+                statistics_allowed=("welch-hall",))
 
 
 permutation_maxt.__doc__ = _doc(
@@ -540,3 +570,35 @@ bootstrap_stepdown.__doc__ = _doc(
     The interval columns hold the single-step bootstrap-t simultaneous
     intervals.
 """, _BOOT_STAT, _TRIM)
+
+bootstrap_hall.__doc__ = _doc(
+    "Adjust a family by the bootstrap max-t of skewness-corrected Welch statistics.",
+    """
+    The bootstrap of :func:`bootstrap_maxt` (within-group resampling of
+    centred data [4]_) applied to Hall's transformation of each Welch t [6]_:
+    T = t + a t^2/3 + a^2 t^3/27 + a/6, where a is the estimated skewness of
+    the comparison's estimate, built from one standardised skewness pooled
+    over all groups (:mod:`famwise.resample.statistics`).  Every resample
+    re-estimates the pooled skewness, so the statistic is bootstrapped
+    whole.  The transformation is monotone; the simultaneous intervals are
+    its inverse at the (1 - alpha) quantile c of max |T*|, so they are not
+    symmetric about the difference, and they exclude 0 exactly when
+    ``reject`` is True.
+
+    Notes
+    -----
+    1. For means of skewed data with small groups.  Mean-centred t
+       statistics of a skewed small group are skewed themselves (a sample
+       that misses the long tail has a low mean and a small SD); a
+       bootstrap of four values cannot see that tail, but the larger
+       groups' residuals can, and the pooled skewness carries it to the
+       small group.  In famwise's error-rate matrix (n = 4 to 30, large
+       SDs in the small groups, lognormal errors of skewness 6.2) the plain
+       bootstrap max-t errs in about 0.065 of data sets at alpha = 0.05,
+       this one in about 0.04.
+    2. Pooling assumes one shape, up to location and scale, for all groups.
+    3. With symmetric data a is near 0 and the result is close to
+       :func:`bootstrap_maxt`; evidence from the short-tail side of a
+       skewed small group counts for less, from the long-tail side for more.
+    4. |a| is bounded by 3.
+""", None)

@@ -10,7 +10,22 @@ the trimmed mean (Yuen), and its squared standard error is
 * pooled: ``v_g = MSE / n_g`` with MSE the within-group mean square;
 * Yuen (1974, *Biometrika* 61:165–170, doi:10.1093/biomet/61.1.165):
   ``v_g = (n_g - 1) s_wg**2 / (h_g (h_g - 1))`` with ``s_wg**2`` the
-  winsorized variance and ``h_g = n_g - 2 floor(trim n_g)``.
+  winsorized variance and ``h_g = n_g - 2 floor(trim n_g)``;
+* Welch with Hall's skewness-removing transformation ("welch-hall"): the
+  Welch ``t_j`` becomes ``T_j = t_j + a_j t_j**2 / 3 + a_j**2 t_j**3 / 27
+  + a_j / 6`` (Hall 1992, *J. R. Statist. Soc. B* 54:221–228,
+  doi:10.1111/j.2517-6161.1992.tb01876.x; the one-sample form, from
+  memory), where ``a_j = K3_j / V_j**1.5`` is the estimated skewness of the
+  comparison's estimate: ``V_j = sum_g W[j, g]**2 v_g`` and ``K3_j =
+  sum_g W[j, g]**3 gamma s_g**3 / n_g**2`` its third cumulant, with one
+  standardised skewness ``gamma`` pooled over the groups (see
+  :func:`pooled_skewness`).  With one group, ``a = gamma / sqrt(n)`` and
+  this is Hall's statistic.  The third cumulant of a contrast of means is
+  also the covariance of its estimate with its variance estimate, the two
+  terms Hall's transformation corrects, so the one-sample form carries
+  over to contrasts.  Pooling ``gamma`` assumes the groups share one shape
+  up to location and scale; it is what lets a group of four borrow the
+  skewness the larger groups show.
 
 The same formulas run inside the compiled kernels for every resample
 (:mod:`famwise.resample.kernels`); this module computes the observed values
@@ -33,9 +48,10 @@ from ..families import Family
 from ..layout import Layout
 
 __all__ = ["STATISTICS", "ALTERNATIVES", "FamilyWeights", "ObservedStatistics",
-           "family_weights", "group_terms", "trimmed_terms", "observed_statistics"]
+           "family_weights", "group_terms", "trimmed_terms", "observed_statistics",
+           "pooled_skewness", "ssq_floor", "hall_skew", "hall_transform", "hall_inverse", "HALL_A_MAX"]
 
-STATISTICS = ("welch", "pooled", "yuen")
+STATISTICS = ("welch", "pooled", "yuen", "welch-hall")
 ALTERNATIVES = ("two-sided", "greater", "less")
 
 # Relative and absolute tolerance for "a resampled statistic reaches the
@@ -45,6 +61,11 @@ TIE_RTOL = 1e-9
 TIE_ATOL = 1e-12
 # Floor of the standard error relative to the overall SD of the data.
 SE_FLOOR = 1e-10
+# Bound on |a_j| of the Hall transformation.  It keeps a / 6 <= 0.5, so an
+# interval built on a critical value of at least 0.5 contains its estimate;
+# a comparison led by a group of four reaches it at a pooled skewness of
+# about 6.
+HALL_A_MAX = 3.0
 
 
 @dataclass(frozen=True)
@@ -55,6 +76,7 @@ class FamilyWeights:
     col: np.ndarray       # (nnz,) int64, group index
     w: np.ndarray         # (nnz,) float64, weight
     w2: np.ndarray        # (nnz,) float64, weight squared
+    w3: np.ndarray        # (nnz,) float64, weight cubed
 
 
 def family_weights(family: Family) -> FamilyWeights:
@@ -64,7 +86,7 @@ def family_weights(family: Family) -> FamilyWeights:
     row_ptr = np.zeros(weights.shape[0] + 1, dtype=np.int64)
     np.cumsum(np.bincount(rows, minlength=weights.shape[0]), out=row_ptr[1:])
     w = weights[rows, cols]
-    return FamilyWeights(row_ptr, cols.astype(np.int64), w, w * w)
+    return FamilyWeights(row_ptr, cols.astype(np.int64), w, w * w, w * w * w)
 
 
 def trimmed_terms(groups: list[np.ndarray], trim: float):
@@ -108,12 +130,87 @@ def group_terms(layout: Layout, statistic: str, trim: float = 0.2):
     return tmean, d
 
 
+def pooled_skewness(ssq, m3, n, ssq_floor=0.0):
+    """Standardised skewness pooled over the groups (last axis).
+
+    ``ssq`` and ``m3`` are each group's sums of squared and cubed deviations
+    from its mean.  Each residual is standardised by its group's SD with
+    the factor sqrt(n_g / (n_g - 1)) (so the standardised residuals have
+    mean square exactly 1), and gamma is the mean cube of all N of them:
+    ``sum_g m3_g (n_g / ssq_g)**1.5 / N``.  Groups without spread (``ssq``
+    at most ``ssq_floor``: rounding, not data) add nothing.
+    """
+    ssq = np.asarray(ssq, dtype=np.float64)
+    n = np.asarray(n, dtype=np.float64)
+    spread = ssq > ssq_floor
+    with np.errstate(divide="ignore", invalid="ignore"):
+        term = np.where(spread, np.asarray(m3) * (n / np.where(spread, ssq, 1.0)) ** 1.5, 0.0)
+    return term.sum(axis=-1) / n.sum()
+
+
+def hall_skew(weights, var, n, gamma, v2):
+    """``a_j`` of the Hall transformation for each comparison (last axis).
+
+    ``var`` are the group variances (..., k), ``gamma`` the pooled skewness
+    (...,), ``v2`` the comparisons' squared standard errors (..., m);
+    bounded by :data:`HALL_A_MAX`.
+    """
+    n = np.asarray(n, dtype=np.float64)
+    c3 = np.asarray(gamma)[..., None] * np.asarray(var) ** 1.5 / n ** 2
+    k3 = c3 @ (np.asarray(weights, dtype=np.float64) ** 3).T
+    with np.errstate(divide="ignore", invalid="ignore"):
+        a = np.where(v2 > 0, k3 / np.where(v2 > 0, v2, 1.0) ** 1.5, 0.0)
+    return np.clip(a, -HALL_A_MAX, HALL_A_MAX)
+
+
+def hall_transform(t, a):
+    """Hall's monotone cubic ``t + a t^2/3 + a^2 t^3/27 + a/6``."""
+    return t + a * t * t / 3.0 + a * a * t * t * t / 27.0 + a / 6.0
+
+
+def hall_inverse(y, a):
+    """The ``t`` with ``hall_transform(t, a) == y``.
+
+    ``hall_transform(t, a) = ((1 + a t / 3)**3 - 1) / a + a / 6``, so
+    ``t = 3 (cbrt(1 + a (y - a / 6)) - 1) / a``; near a = 0 the two-term
+    series ``u - a u^2 / 3`` (u = y - a / 6) avoids the cancellation.
+    """
+    y, a = np.broadcast_arrays(np.asarray(y, dtype=np.float64),
+                               np.asarray(a, dtype=np.float64))
+    u = y - a / 6.0
+    small = np.abs(a) < 1e-7
+    safe = np.where(small, 1.0, a)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        exact = 3.0 * (np.cbrt(1.0 + safe * u) - 1.0) / safe
+    return np.where(small, u - a * u * u / 3.0, exact)
+
+
+def ssq_floor(layout: Layout) -> np.ndarray:
+    """Sums of squares below which a group counts as without spread:
+    ``(SE_FLOOR s)**2 n_g`` with s the overall SD (as the SE floor)."""
+    values = layout.values
+    scale = float(np.std(values - values.mean())) or 1.0
+    return (SE_FLOOR * scale) ** 2 * layout.stats.n.astype(np.float64)
+
+
+def _hall_observed(layout: Layout, weights, t, se2):
+    st = layout.stats
+    groups = layout.split()
+    ssq = np.array([float(((g - g.mean()) ** 2).sum()) for g in groups])
+    m3 = np.array([float(((g - g.mean()) ** 3).sum()) for g in groups])
+    gamma = pooled_skewness(ssq, m3, st.n, ssq_floor(layout))
+    a = hall_skew(weights, st.var, st.n, gamma, se2)
+    return hall_transform(t, a), a, float(gamma)
+
+
 @dataclass(frozen=True)
 class ObservedStatistics:
     """Observed estimates, standard errors and studentized statistics.
 
     ``u`` is the oriented statistic the max is taken over (|T|, T or -T)
     and ``thr`` the threshold a resampled u must reach to count as a hit.
+    With "welch-hall", ``statistic`` is the transformed T, ``skew`` the
+    ``a_j`` of each comparison and ``gamma`` the pooled skewness.
     """
 
     estimate: np.ndarray
@@ -122,12 +219,15 @@ class ObservedStatistics:
     u: np.ndarray
     thr: np.ndarray
     se2_floor: np.ndarray = field(repr=False)
+    skew: np.ndarray | None = None
+    gamma: float | None = None
 
 
 def observed_statistics(layout: Layout, family: Family, statistic: str,
                         alternative: str, trim: float = 0.2) -> ObservedStatistics:
     """Compute the family's observed statistics under ``statistic``."""
-    centre, var_centre = group_terms(layout, statistic, trim)
+    centre, var_centre = group_terms(layout, "welch" if statistic == "welch-hall" else statistic,
+                                     trim)
     weights = np.asarray(family.weights, dtype=np.float64)
     est = weights @ centre
     se2 = (weights * weights) @ var_centre
@@ -140,6 +240,9 @@ def observed_statistics(layout: Layout, family: Family, statistic: str,
             f"undefined for it")
     se = np.sqrt(se2)
     t = est / se
+    skew = gamma = None
+    if statistic == "welch-hall":
+        t, skew, gamma = _hall_observed(layout, weights, t, se2)
     u = np.abs(t) if alternative == "two-sided" else (t if alternative == "greater" else -t)
     thr = u - (TIE_RTOL * np.abs(u) + TIE_ATOL)
     # Standard-error floor: (1e-10 s)^2 sum_g w^2 / n_g, s = overall SD.
@@ -147,4 +250,4 @@ def observed_statistics(layout: Layout, family: Family, statistic: str,
     scale = float(np.std(values - values.mean())) or 1.0
     n = layout.stats.n.astype(np.float64)
     se2_floor = (SE_FLOOR * scale) ** 2 * ((weights * weights) @ (1.0 / n))
-    return ObservedStatistics(est, se, t, u, thr, se2_floor)
+    return ObservedStatistics(est, se, t, u, thr, se2_floor, skew, gamma)
