@@ -312,10 +312,29 @@ def _yuen_min_p(family, rep, m, trim=0.2):
     return np.minimum(1.0, m * p.min(axis=1))
 
 
+def _hall_t(w, x, means, variances, rep: _Replicates):
+    """Hall-transformed Welch t of each replicate (rows of ``x``), with the
+    skewness pooled over groups (:mod:`famwise.resample.statistics`)."""
+    from ..resample.statistics import SE_FLOOR, hall_skew, hall_transform, pooled_skewness
+    n = rep.n
+    t, _ = _welch_t(w, means, variances, n)
+    dev = x - means[:, rep.codes]
+    ssq = np.add.reduceat(dev * dev, rep.bounds[:-1], axis=1)
+    m3 = np.add.reduceat(dev ** 3, rep.bounds[:-1], axis=1)
+    scale = x.std(axis=1, keepdims=True)
+    gamma = pooled_skewness(ssq, m3, n, (SE_FLOOR * scale) ** 2 * n)
+    v2 = (variances / n) @ (w * w).T
+    return hall_transform(t, hall_skew(w, variances, n, gamma, v2))
+
+
 def _warp_speed_reject(name, family, rep: _Replicates, alpha, rng):
     """Warp-speed rejection indicators for a resampling max-T procedure."""
     w, n = family.weights, rep.n
-    t_obs, _ = _welch_t(w, rep.means, rep.vars, n)
+    hall = name == "bootstrap-hall"
+    if hall:
+        t_obs = _hall_t(w, rep.x, rep.means, rep.vars, rep)
+    else:
+        t_obs, _ = _welch_t(w, rep.means, rep.vars, n)
     t_obs = np.abs(t_obs).max(axis=1)
     x = rep.x
     if name.startswith("permutation"):
@@ -329,7 +348,10 @@ def _warp_speed_reject(name, family, rep: _Replicates, alpha, rng):
         xs = np.take_along_axis(centred, idx, axis=1)
     ms, vs = rep.summaries(xs)
     vs = np.maximum(vs, 1e-300)
-    t_star, _ = _welch_t(w, ms, vs, n)
+    if hall:
+        t_star = _hall_t(w, xs, ms, vs, rep)
+    else:
+        t_star, _ = _welch_t(w, ms, vs, n)
     t_star = np.abs(t_star).max(axis=1)
     crit = np.quantile(t_star, 1 - alpha)
     return t_obs > crit

@@ -31,8 +31,9 @@ Defaults and where they come from:
   smallest group is under ``games_howell_min_n``, the spread checks have
   little power and the SD ratio is noisy, yet pooled procedures are badly
   liberal if the small groups have the larger spreads; such designs go to
-  the unequal-variance route even when the spread checks pass (our policy,
-  from the same matrix; no source).
+  the unequal-variance route even when the spread checks pass, and, when
+  the shape is poor too, to the bootstrap rather than the permutation max-T
+  (our policy, from the same matrix; no source).
 """
 
 from __future__ import annotations

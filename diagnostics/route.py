@@ -4,16 +4,18 @@
 
 1. shape poor (normality rejected while the p-value decides, large skew or
    tails, or gross outliers) -> resampling: permutation max-T with Welch
-   statistics when the spreads agree, bootstrap max-t when they do not (the
-   permutation is liberal when small groups carry large spreads);
+   statistics when the spreads agree, otherwise the bootstrap max-t with
+   Hall's skewness correction (the permutation is liberal when small groups
+   carry large spreads, the uncorrected bootstrap when they are skewed too);
 2. shape fine, spreads unequal -> unequal-variance procedures: Games–Howell
    for all pairs with groups of ``policy.games_howell_min_n`` or more,
    otherwise Dunnett's T3 (with ``policy.calibrate_candidates``, unless a
    quick calibration at the observed sizes and SDs shows Games–Howell within
    alpha + 2 Monte Carlo SE); Welch–Dunnett against a reference; Dunnett's
-   T3 for contrasts.  Unbalanced designs with a group under
-   ``games_howell_min_n`` take this route even when the spread checks pass
-   (``policy.welch_when_small_unbalanced``);
+   T3 for contrasts;
+   unbalanced designs with a group under ``games_howell_min_n`` are treated
+   as having unequal spreads even when the spread checks pass
+   (``policy.welch_when_small_unbalanced``), here and in step 1;
 3. shape and spread fine -> classical: Tukey–Kramer for all pairs, Dunnett
    against a reference, and for contrasts the shorter of Šidák and Scheffé.
 
@@ -189,43 +191,54 @@ def choose(findings: Findings, family: Family, layout: Layout, policy: Policy | 
                      crosscheck_procedure(procedure, family))
     reasons, alternatives, calibration = [], [], None
     n = layout.stats.n
-    fragile = (policy.welch_when_small_unbalanced and not poor and not unequal
+    fragile = (policy.welch_when_small_unbalanced and not unequal
                and n.min() < policy.games_howell_min_n
                and n.max() / n.min() >= policy.unbalanced_ratio)
     if fragile:
         unequal = [f"The design is unbalanced (n from {n.min()} to {n.max()}) and the smallest "
                    f"group has fewer than {policy.games_howell_min_n} observations: the spread "
-                   f"checks have little power there, and pooled procedures are badly liberal "
-                   f"if the small groups have the larger spreads, so famwise does not rely "
-                   f"on a common variance."]
+                   f"checks have little power there, and procedures that need equal spreads "
+                   f"(a pooled variance, or permutations) are badly liberal if the small "
+                   f"groups have the larger spreads, so famwise does not rely on equal "
+                   f"spreads."]
     if poor:
         route = "resample"
         reasons.append("The residuals are far from normal. " + " ".join(poor))
         if unequal:
-            proc = "bootstrap-maxt"
+            proc = "bootstrap-hall"
             if layout.stats.n.min() < policy.small_group:
                 warnings.append(
                     "With far-from-normal data, unequal spreads and groups under "
-                    f"{policy.small_group}, no procedure here holds the familywise level "
-                    "exactly: the bootstrap max-t comes closest (about 0.07 at alpha 0.05 "
-                    "for strongly skewed data in famwise's error-rate matrix), so treat "
-                    "borderline results with caution.")
-            reasons.append("The spreads also differ. " + " ".join(unequal) + " So the "
-                           "bootstrap max-t with Welch statistics and within-group resampling "
-                           "is used.")
+                    f"{policy.small_group}, the bootstrap's skewness correction leans on one "
+                    "shape for all groups (estimated from all of them); where the groups' "
+                    "shapes differ, treat borderline results with caution.")
+            reasons.append("The spreads also differ. " + " ".join(unequal) + " So a bootstrap "
+                           "max-t with Welch statistics and within-group resampling is used, "
+                           "with Hall's skewness correction: a skewed small group's t "
+                           "statistic is itself skewed, and the correction, using one "
+                           "skewness pooled over all groups, keeps that from producing "
+                           "false differences.")
+            alternatives.append(Alternative("bootstrap-maxt",
+                                            "without the skewness correction it is liberal "
+                                            "when small groups of skewed data carry large "
+                                            "spreads"))
             alternatives.append(Alternative("permutation-maxt",
                                             "liberal when spreads differ, most of all with "
                                             "small groups"))
+            alternatives.append(Alternative("bootstrap-stepdown",
+                                            "more powerful, but without the skewness "
+                                            "correction, and its decisions are not dual to "
+                                            "simultaneous intervals"))
         else:
             proc = "permutation-maxt"
             reasons.append("The spreads agree, so a permutation max-T with Welch statistics "
                            "is used; it is exact under exchangeability.")
-            alternatives.append(Alternative("bootstrap-maxt",
+            alternatives.append(Alternative("bootstrap-hall",
                                             "conservative with small groups; not needed when "
                                             "spreads agree"))
-        alternatives.append(Alternative(proc.replace("maxt", "stepdown"),
-                                        "more powerful, but its decisions are not dual to "
-                                        "simultaneous intervals"))
+            alternatives.append(Alternative("permutation-stepdown",
+                                            "more powerful, but its decisions are not dual to "
+                                            "simultaneous intervals"))
         if family.is_pairwise:
             alternatives.append(Alternative("yuen-holm", "trimmed means answer a different "
                                             "question (a trimmed mean, not the mean)"))
