@@ -52,12 +52,13 @@ SEED = 20240611
 
 #: Single-step procedures whose simultaneous intervals are dual to their
 #: decisions (each docstring: interval est -/+ c se with c the critical value
-#: of the adjusted p-value's reference distribution).  lsd only when its F
+#: of the adjusted p-value's reference distribution; for bootstrap-hall the
+#: inverse of its transformation at c).  lsd only when its F
 #: gate is open; welch is unadjusted but its intervals are the matching
 #: one-at-a-time ones.
 DUAL = {"tukey-kramer", "scheffe", "dunnett", "bonferroni", "sidak", "games-howell",
-        "dunnett-t3", "welch-dunnett", "permutation-maxt", "bootstrap-maxt", "welch",
-        "lsd"}
+        "dunnett-t3", "welch-dunnett", "permutation-maxt", "bootstrap-maxt",
+        "bootstrap-hall", "welch", "lsd"}
 #: Intervals are single-step ones: excluding zero implies rejection.
 EXCLUDE_IMPLIES_REJECT = {"holm", "welch-holm", "yuen-holm", "permutation-stepdown",
                           "bootstrap-stepdown"}
