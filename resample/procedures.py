@@ -600,5 +600,5 @@ bootstrap_hall.__doc__ = _doc(
     3. With symmetric data a is near 0 and the result is close to
        :func:`bootstrap_maxt`; evidence from the short-tail side of a
        skewed small group counts for less, from the long-tail side for more.
-    4. |a| is bounded by 3.
+    4. |a| is bounded by 1 (``statistics.HALL_A_MAX``).
 """, None)

@@ -378,7 +378,7 @@ def _numpy_hall_max(groups, b, rng):
         v2 = np.maximum(var[:, i] / n[i] + var[:, j] / n[j], 1e-300)
         t = (means[:, i] - means[:, j]) / np.sqrt(v2)
         k3 = gamma * (var[:, i] ** 1.5 / n[i] ** 2 - var[:, j] ** 1.5 / n[j] ** 2)
-        a = np.clip(k3 / v2 ** 1.5, -3, 3)
+        a = np.clip(k3 / v2 ** 1.5, -1, 1)
         mx = np.maximum(mx, np.abs(t + a * t ** 2 / 3 + a ** 2 * t ** 3 / 27 + a / 6))
     return mx
 
