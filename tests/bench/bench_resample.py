@@ -29,8 +29,8 @@ from scipy import stats
 
 from famwise.families import all_pairs
 from famwise.layout import Layout
-from famwise.resample import (UnsettledWarning, bootstrap_maxt, permutation_maxt,
-                              permutation_stepdown)
+from famwise.resample import (UnsettledWarning, bootstrap_hall, bootstrap_maxt,
+                              permutation_maxt, permutation_stepdown)
 
 warnings.simplefilter("ignore", UnsettledWarning)
 
@@ -108,7 +108,7 @@ def main():
     layout = Layout.from_groups(groups)
     fam = all_pairs(layout.labels)
     big_n = k * n
-    for fn in (permutation_maxt, permutation_stepdown, bootstrap_maxt):
+    for fn in (permutation_maxt, permutation_stepdown, bootstrap_maxt, bootstrap_hall):
         fn(layout, fam, resamples=50, seed=1)             # compile or load the kernels
 
     # 1. against scipy at the same B, side by side
@@ -160,6 +160,10 @@ def main():
     ratio = t_boot / t_perm2
     row("bootstrap / permutation time", f"{ratio:.2f}", "<= 1.5", ratio <= 1.5,
         f"{t_boot:.3f} s vs {t_perm2:.3f} s")
+    t_hall, _ = timed(bootstrap_hall, layout, fam, resamples=b, seed=1)
+    t_boot2, _ = timed(bootstrap_maxt, layout, fam, resamples=b, seed=1)
+    row("  bootstrap-hall / bootstrap-maxt time (information)", f"{t_hall / t_boot2:.2f}",
+        "-", True, f"{t_hall:.3f} s vs {t_boot2:.3f} s; third moments and the transformation")
 
     # 5. large data in a fresh process: memory and linearity in N * B
     # Run as a script from a scratch folder, so the child imports the installed
