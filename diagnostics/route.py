@@ -212,7 +212,8 @@ def choose(findings: Findings, family: Family, layout: Layout, policy: Policy | 
                     f"{policy.small_group}, the bootstrap's skewness correction leans on one "
                     "shape for all groups (estimated from all of them); where the groups' "
                     "shapes differ, treat borderline results with caution.")
-            reasons.append("The spreads also differ. " + " ".join(unequal) + " So a bootstrap "
+            reasons.append(("" if fragile else "The spreads also differ. ")
+                           + " ".join(unequal) + " So a bootstrap "
                            "max-t with Welch statistics and within-group resampling is used, "
                            "with Hall's skewness correction: a skewed small group's t "
                            "statistic is itself skewed, and the correction, using one "

@@ -49,7 +49,8 @@ from ..layout import Layout
 
 __all__ = ["STATISTICS", "ALTERNATIVES", "FamilyWeights", "ObservedStatistics",
            "family_weights", "group_terms", "trimmed_terms", "observed_statistics",
-           "pooled_skewness", "ssq_floor", "hall_skew", "hall_transform", "hall_inverse", "HALL_A_MAX"]
+           "pooled_skewness", "ssq_floor", "hall_skew", "hall_transform", "hall_inverse",
+           "HALL_A_MAX"]
 
 STATISTICS = ("welch", "pooled", "yuen", "welch-hall")
 ALTERNATIVES = ("two-sided", "greater", "less")

@@ -100,6 +100,7 @@ def test_poor_shape_in_a_small_unbalanced_design_does_not_trust_equal_spreads():
     r = route_of(lay)
     assert (r.route, r.procedure) == ("resample", "bootstrap-hall")
     assert "does not rely on equal spreads" in " ".join(r.reasons)
+    assert "spreads also differ" not in " ".join(r.reasons)
     assert route_of(lay, policy=NO_CAL.replace(welch_when_small_unbalanced=False)
                     ).procedure == "permutation-maxt"
 
