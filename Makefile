@@ -18,7 +18,7 @@ test: $(STAMP)
 	$(PY) -m pytest -q
 
 test-slow: $(STAMP)
-	$(PY) -m pytest -q -m slow
+	$(PY) -m pytest -q -m "slow or matrix"
 
 demo: $(STAMP)
 	$(VENV)/bin/famwise demo --out out/demo --force
