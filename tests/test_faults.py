@@ -57,6 +57,14 @@ def _one_error_line(stderr):
 
 # --- (a) an interrupted run ---------------------------------------------------------
 
+def _default_sigint():
+    """In the child before exec: Ctrl-C back to its default action.  A shell
+    that runs a job in the background (``cmd &`` without job control) gives
+    it SIGINT ignored, the ignore is inherited, and Python then installs no
+    KeyboardInterrupt handler; the test must not depend on how it was started."""
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
+
+
 def test_sigint_during_compare_leaves_no_output(tmp_path):
     """Ctrl-C while the resampling runs: exit 130, one line, and the output
     folder (created before the work, to fail early) holds nothing at all."""
@@ -70,7 +78,8 @@ def test_sigint_during_compare_leaves_no_output(tmp_path):
         [sys.executable, "-m", "famwise", "compare", str(data), *RG, "-p",
          "permutation-maxt", "--resamples", "5000000", "--seed", "1", "--no-crosscheck",
          "--jobs", "2", "--out", str(out)],
-        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=_env())
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=_env(),
+        preexec_fn=_default_sigint)
     try:
         deadline = time.monotonic() + 120
         while not out.exists():                # the folder is made before the work

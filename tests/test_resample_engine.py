@@ -226,8 +226,11 @@ def test_sigint_stops_a_long_run_cleanly(tmp_path):
         print("RESULT", t.shape, flush=True)
     """))
     env = dict(os.environ)
+    # SIGINT back to its default in the child: a test run started as a
+    # background job inherits it ignored (see tests/test_faults.py).
     proc = subprocess.Popen([sys.executable, str(script)], stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, text=True, env=env)
+                            stderr=subprocess.PIPE, text=True, env=env,
+                            preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
     try:
         assert proc.stdout.readline().strip() == "ready"
         time.sleep(0.5)
