@@ -86,6 +86,20 @@ def _pcg_out(old):
 
 
 @njit(cache=True, nogil=True, inline="always")
+def _draw(state, inc, bound, tg):
+    """One exactly uniform index in [0, bound) and the advanced state
+    (Lemire's multiply-and-reject; ``tg = (2^32 - bound) % bound``)."""
+    old = state
+    state = old * _MULT + inc
+    prod = _pcg_out(old) * bound
+    while (prod & _M32) < tg:
+        old = state
+        state = old * _MULT + inc
+        prod = _pcg_out(old) * bound
+    return np.int64(prod >> _S32), state
+
+
+@njit(cache=True, nogil=True, inline="always")
 def _tally(ustat, thr, order, hits_marginal, hits_stepdown, stepdown):
     """Count u_j >= thr_j, then, if ``stepdown``, the successive maxima from
     the lowest-ranked comparison upwards; return the max of ``ustat``."""
@@ -352,14 +366,8 @@ def bootstrap_chunk(r, start, n, pooled, row_ptr, col, w, w2, se2_floor, sign,
             acc = 0.0
             acc2 = 0.0
             for _ in range(n[g]):
-                old = state
-                state = old * _MULT + inc
-                prod = _pcg_out(old) * bound
-                while (prod & _M32) < tg:
-                    old = state
-                    state = old * _MULT + inc
-                    prod = _pcg_out(old) * bound
-                v = r[base + np.int64(prod >> _S32)]
+                j, state = _draw(state, inc, bound, tg)
+                v = r[base + j]
                 acc += v
                 acc2 += v * v
             mg = acc / n[g]
@@ -380,8 +388,9 @@ def bootstrap_chunk(r, start, n, pooled, row_ptr, col, w, w2, se2_floor, sign,
 
 
 @njit(cache=True, nogil=True)
-def bootstrap_hall_chunk(r, start, n, ssq_floor, a_max, row_ptr, col, w, w2, w3, se2_floor, sign,
-                         two_sided, thr, order, stepdown, size, rng_state):
+def bootstrap_hall_chunk(r, start, n, ssq_floor, a_max, row_ptr, col, w, w2, w3,
+                         se2_floor, sign, two_sided, thr, order, stepdown, size,
+                         rng_state):
     """Run ``size`` bootstrap resamples with Hall-transformed Welch statistics.
 
     As :func:`bootstrap_chunk` (``r``: residuals about each group's mean),
@@ -417,14 +426,8 @@ def bootstrap_hall_chunk(r, start, n, ssq_floor, a_max, row_ptr, col, w, w2, w3,
             acc2 = 0.0
             acc3 = 0.0
             for _ in range(n[g]):
-                old = state
-                state = old * _MULT + inc
-                prod = _pcg_out(old) * bound
-                while (prod & _M32) < tg:
-                    old = state
-                    state = old * _MULT + inc
-                    prod = _pcg_out(old) * bound
-                v = r[base + np.int64(prod >> _S32)]
+                j, state = _draw(state, inc, bound, tg)
+                v = r[base + j]
                 acc += v
                 acc2 += v * v
                 acc3 += v * v * v
@@ -487,14 +490,8 @@ def bootstrap_trimmed_chunk(r, start, n, cut, row_ptr, col, w, w2, se2_floor,
             for i in range(ng):
                 counts[base + i] = 0
             for _ in range(ng):
-                old = state
-                state = old * _MULT + inc
-                prod = _pcg_out(old) * bound
-                while (prod & _M32) < tg:
-                    old = state
-                    state = old * _MULT + inc
-                    prod = _pcg_out(old) * bound
-                counts[base + np.int64(prod >> _S32)] += 1
+                j, state = _draw(state, inc, bound, tg)
+                counts[base + j] += 1
             c = cut[g]
             lo_rank = c
             hi_rank = ng - c - 1
