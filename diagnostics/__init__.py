@@ -5,7 +5,7 @@ returns the :class:`Findings` that :mod:`famwise.diagnostics.route` turns
 into a procedure and its reasons.
 """
 
-from ..layout import Layout
+from ..core.layout import Layout
 from .check import VERDICTS, Check, Findings
 from .design import design_checks
 from .policy import Policy, load_policy

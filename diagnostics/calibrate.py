@@ -39,11 +39,11 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from .. import distributions as dist
-from ..errors import FamwiseInputError
-from ..families import Family
-from ..layout import Layout
-from ..procedures import CATALOGUE
+from ..distributions import simultaneous as dist
+from ..core.errors import FamwiseInputError
+from ..core.families import Family
+from ..core.layout import Layout
+from ..procedures.catalogue import CATALOGUE
 from .policy import Policy
 
 __all__ = ["quick_fwer", "Calibration", "calibrate_layout", "independent_fwer"]
@@ -74,7 +74,7 @@ def quick_fwer(procedure: str, n, sd, *, alpha: float = 0.05, replicates: int = 
     a second for 4,000 replicates of a few groups.  Supports ``games-howell``,
     ``dunnett-t3`` and ``tukey-kramer``.
     """
-    from ..unequal import dunnett_t3_rejects, games_howell_rejects
+    from ..procedures.unequal import dunnett_t3_rejects, games_howell_rejects
     rng = np.random.default_rng(seed)
     means, variances = _null_summaries(rng, n, sd, replicates)
     n = np.asarray(n)
@@ -211,9 +211,9 @@ def _closed_form_min_p(name, family, rep: _Replicates, alpha):
 
     For Games-Howell and Dunnett's T3 the value is only the decision at alpha
     (0 = rejects, 1 = does not), from the fast one-alpha cores of
-    famwise.unequal; every caller compares it with alpha.
+    famwise.procedures.unequal; every caller compares it with alpha.
     """
-    from ..adjust import bh
+    from ..procedures.adjust import bh
     w, n = family.weights, rep.n
     m = family.m
     means, variances = rep.means, rep.vars
@@ -237,7 +237,7 @@ def _closed_form_min_p(name, family, rep: _Replicates, alpha):
             return stats.f.sf(t * t / (rep.k - 1), rep.k - 1, df).min(axis=1), len(p)
         lam = np.sqrt(1.0 / (1.0 + n[family.reference] / n[family.pairs[:, 0]]))
         return dist.dunnett_sf(np.abs(t).max(axis=1), lam, df), len(p)
-    from ..unequal import dunnett_t3_rejects, games_howell_rejects
+    from ..procedures.unequal import dunnett_t3_rejects, games_howell_rejects
     if name == "games-howell":
         hits = games_howell_rejects(means, variances, n, alpha, family.pairs).any(axis=1)
         return np.where(hits, 0.0, 1.0), len(means)
@@ -263,7 +263,7 @@ def _welch_dunnett_min_p(family, means, variances, n, alpha):
     that (the Bonferroni bound), so a replicate whose smallest Bonferroni p is
     at most alpha rejects and one whose smallest marginal p exceeds alpha
     does not.  Only the rows in between are evaluated with the multivariate t
-    at their own Welch df (as famwise.unequal.welch_dunnett does); the
+    at their own Welch df (as famwise.procedures.unequal.welch_dunnett does); the
     returned value is exact for the decision at alpha.
     """
     t, df = _welch_t(family.weights, means, variances, n)

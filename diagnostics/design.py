@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 
-from ..layout import Layout
+from ..core.layout import Layout
 from .check import Check
 from .policy import Policy
 

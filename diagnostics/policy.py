@@ -42,7 +42,7 @@ import dataclasses
 import os
 from dataclasses import dataclass
 
-from ..errors import FamwiseInputError
+from ..core.errors import FamwiseInputError
 
 __all__ = ["Policy", "load_policy"]
 
@@ -71,7 +71,7 @@ class Policy:
         known = {f.name: f for f in dataclasses.fields(self)}
         for key, value in changes.items():
             if key not in known:
-                from ..errors import did_you_mean
+                from ..core.errors import did_you_mean
                 raise FamwiseInputError(
                     f"unknown policy setting {key!r}{did_you_mean(key, known)} "
                     f"(settings: {', '.join(known)})")

@@ -31,9 +31,9 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import stats
 
-from ..families import Family
-from ..layout import Layout
-from ..procedures import CATALOGUE, check_procedure
+from ..core.families import Family
+from ..core.layout import Layout
+from ..procedures.catalogue import CATALOGUE, check_procedure
 from .check import Findings
 from .policy import Policy
 

@@ -13,7 +13,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import stats
 
-from ..layout import Layout
+from ..core.layout import Layout
 from .check import Check
 from .policy import Policy
 

@@ -3,19 +3,39 @@
 Reads a file or DataFrame and accounts for every row, checks the data,
 routes them to a classical, unequal-variance or resampling simultaneous
 procedure, cross-checks the result and records why the procedure was chosen.
+
+The public names below load on first use, so ``import famwise`` (and the
+command line's ``--help``) stays fast: neither scipy.stats, pandas nor
+matplotlib is imported until a function that needs them is called.
 """
 
-from importlib.metadata import PackageNotFoundError, version as _version
+from .core.errors import FamwiseError, FamwiseInputError, FamwiseWarning
+from .core.version import __version__
 
-from .api import calibrate, compare, inspect
-from .batch import batch
-from .errors import FamwiseError, FamwiseInputError, FamwiseWarning
-from .layout import Layout
-
-try:
-    __version__ = _version("famwise")
-except PackageNotFoundError:  # running from a source tree without install
-    __version__ = "0.0.0+unknown"
+# public name -> (module, attribute), imported on first access (PEP 562)
+_LAZY = {
+    "compare": ("famwise.api", "compare"),
+    "inspect": ("famwise.api", "inspect"),
+    "calibrate": ("famwise.api", "calibrate"),
+    "batch": ("famwise.batching.run", "batch"),
+    "Layout": ("famwise.core.layout", "Layout"),
+    "Comparison": ("famwise.comparison", "Comparison"),
+}
 
 __all__ = ["__version__", "compare", "inspect", "calibrate", "batch", "FamwiseError",
-           "FamwiseInputError", "FamwiseWarning", "Layout"]
+           "FamwiseInputError", "FamwiseWarning", "Layout", "Comparison"]
+
+
+def __getattr__(name):
+    try:
+        module, attribute = _LAZY[name]
+    except KeyError:
+        raise AttributeError(f"module 'famwise' has no attribute {name!r}") from None
+    from importlib import import_module
+    value = getattr(import_module(module), attribute)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_LAZY))

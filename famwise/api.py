@@ -17,16 +17,17 @@ import pandas as pd
 
 from .diagnostics import Findings, Policy, load_policy, run_checks
 from .diagnostics.route import Route, choose
-from .errors import FamwiseInputError, SmallGroupWarning
-from .families import Family, build_family
-from .intake import Intake, file_sha256, read
-from .layout import Layout
-from .ledger import Ledger
-from .margin import check_margin, classify
-from .procedures import CATALOGUE, check_procedure, run_procedure
-from .results import Comparison, DecisionRecord, environment
-from .summary import group_summary
-from .validate import check_alpha, check_alternative
+from .core.errors import FamwiseInputError, SmallGroupWarning
+from .core.families import Family, build_family
+from .intake.reader import Intake, file_sha256, read
+from .core.layout import Layout
+from .intake.ledger import Ledger
+from .procedures.margin import check_margin, classify
+from .procedures.catalogue import CATALOGUE, check_procedure, run_procedure
+from .comparison import Comparison
+from .core.results import DecisionRecord, environment
+from .intake.summary import group_summary
+from .core.validate import check_alpha, check_alternative
 
 __all__ = ["compare", "inspect", "calibrate", "Inspection", "load_data"]
 
@@ -97,7 +98,7 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
     reference : str, optional
         The reference (control) group for ``family="vs-reference"``.
     contrasts : str, list or dict, optional
-        The contrasts for ``family="contrasts"`` (see :mod:`famwise.families`).
+        The contrasts for ``family="contrasts"`` (see :mod:`famwise.core.families`).
     procedure : str, default="auto"
         ``"auto"`` lets the policy choose; or a procedure identifier
         (``famwise procedures`` lists them).
@@ -160,7 +161,7 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
     table = _run(route.procedure, layout, fam, alpha, alternative, resampling_options)
     check = None
     if crosscheck and route.crosscheck:
-        from .crosscheck import crosscheck as run_crosscheck
+        from .procedures.crosscheck import crosscheck as run_crosscheck
         cc_resampling = dict(resampling_options)
         if cc_resampling["resamples"] == "auto":
             cc_resampling["resamples"] = 9999
@@ -172,7 +173,7 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
         table = table.assign(practical=classify(table["ci_lower"], table["ci_upper"], margin))
     groups = group_summary(layout)
     if fam.kind == "all-pairs":
-        from .letters import compact_letters
+        from .procedures.letters import compact_letters
         groups = groups.assign(letters=compact_letters(groups["mean"].to_numpy(), table,
                                                        list(layout.labels)))
     calibration = None

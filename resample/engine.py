@@ -28,7 +28,7 @@ from typing import Callable
 
 import numpy as np
 
-from ..errors import FamwiseInputError
+from ..core.errors import FamwiseInputError
 from . import kernels
 
 __all__ = ["BACKENDS", "ResamplingProblem", "ChunkResult", "ResamplingRun",

@@ -1,7 +1,7 @@
 """Permutation and bootstrap max-statistic procedures (single-step, step-down).
 
 Four procedures, each ``fn(layout, family, *, alpha=0.05, **options)``
-returning the comparisons table (:func:`famwise.table.comparisons_table`)
+returning the comparisons table (:func:`famwise.core.table.comparisons_table`)
 with the resampling columns ``mc_error`` and ``unsettled``:
 
 * :func:`permutation_maxt`, :func:`permutation_stepdown`: Westfall & Young
@@ -24,10 +24,10 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ..errors import FamwiseInputError, FamwiseWarning
-from ..families import Family
-from ..layout import Layout
-from ..table import comparisons_table
+from ..core.errors import FamwiseInputError, FamwiseWarning
+from ..core.families import Family
+from ..core.layout import Layout
+from ..core.table import comparisons_table
 from . import engine
 from .statistics import (ALTERNATIVES, HALL_A_MAX, family_weights, hall_inverse,
                          observed_statistics, ssq_floor, trimmed_terms)
@@ -342,9 +342,9 @@ def _run(procedure, method, stepdown, layout, family, *, alpha, resamples, seed,
 _COMMON_PARAMETERS = """
     Parameters
     ----------
-    layout : famwise.layout.Layout
+    layout : famwise.core.layout.Layout
         The data; every group needs at least 2 values.
-    family : famwise.families.Family
+    family : famwise.core.families.Family
         All pairs, vs a reference, or contrasts (any weights).
     alpha : float, default=0.05
         Familywise error rate; also sets the interval level 1 - alpha.
@@ -394,7 +394,7 @@ _COMMON_PARAMETERS = """
 
     Raises
     ------
-    famwise.errors.FamwiseInputError
+    famwise.core.errors.FamwiseInputError
         Bad options, a group with fewer than 2 values, or a comparison with
         zero standard error.
 

@@ -43,9 +43,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..errors import FamwiseInputError
-from ..families import Family
-from ..layout import Layout
+from ..core.errors import FamwiseInputError
+from ..core.families import Family
+from ..core.layout import Layout
 
 __all__ = ["STATISTICS", "ALTERNATIVES", "FamilyWeights", "ObservedStatistics",
            "family_weights", "group_terms", "trimmed_terms", "observed_statistics",

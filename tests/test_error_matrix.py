@@ -37,8 +37,8 @@ import numpy as np
 import pytest
 
 import famwise
-from famwise.families import all_pairs
-from famwise.layout import Layout
+from famwise.core.families import all_pairs
+from famwise.core.layout import Layout
 
 ALPHA = 0.05
 UNBALANCED = (4, 6, 8, 12, 20, 30)

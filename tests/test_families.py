@@ -8,8 +8,8 @@ import numpy as np
 import pytest
 from hypothesis import given, strategies as st
 
-from famwise.errors import FamwiseInputError
-from famwise.families import all_pairs, build_family, contrasts, parse_contrast, vs_reference
+from famwise.core.errors import FamwiseInputError
+from famwise.core.families import all_pairs, build_family, contrasts, parse_contrast, vs_reference
 
 LABELS = ["Bare fallow", "Cereal rye", "Rye + hairy vetch", "Oat / radish"]
 

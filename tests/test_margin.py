@@ -9,8 +9,8 @@ reaches inside the margin -> real, may be below the margin; inside (-d, d)
 import numpy as np
 import pytest
 
-from famwise.errors import FamwiseInputError
-from famwise.margin import PRACTICAL, check_margin, classify
+from famwise.core.errors import FamwiseInputError
+from famwise.procedures.margin import PRACTICAL, check_margin, classify
 
 
 @pytest.mark.parametrize("lo, hi, expected", [

@@ -30,10 +30,10 @@ import pandas as pd
 import pytest
 
 import famwise
-from famwise.errors import FamwiseInputError
-from famwise.families import all_pairs, vs_reference
+from famwise.core.errors import FamwiseInputError
+from famwise.core.families import all_pairs, vs_reference
 from famwise.intake import read
-from famwise.layout import Layout
+from famwise.core.layout import Layout
 from famwise.procedures import CATALOGUE, run_procedure
 
 B = 199

@@ -22,7 +22,7 @@ seed) and ``famwise.compare(..., crosscheck=False)`` must
 
 These are facts of the trade (the definitions of the procedures; Holm 1979,
 Westfall & Young 1993, Benjamini & Yekutieli 2005) and the project's own
-contract (famwise.table, each procedure's docstring); common practice, no
+contract (famwise.core.table, each procedure's docstring); common practice, no
 source.  Rows at the decision boundary (|p - alpha| or the interval end within
 a relative 1e-7) are left out of the duality checks.
 
@@ -41,9 +41,9 @@ from hypothesis import HealthCheck, Phase, given, settings
 from hypothesis import strategies as st
 
 import famwise
-from famwise.errors import FamwiseInputError
-from famwise.families import all_pairs, vs_reference
-from famwise.layout import Layout
+from famwise.core.errors import FamwiseInputError
+from famwise.core.families import all_pairs, vs_reference
+from famwise.core.layout import Layout
 from famwise.procedures import CATALOGUE, run_procedure
 
 ALPHA = 0.05

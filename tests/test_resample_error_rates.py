@@ -31,8 +31,8 @@ import warnings
 import numpy as np
 import pytest
 
-from famwise.families import all_pairs
-from famwise.layout import Layout
+from famwise.core.families import all_pairs
+from famwise.core.layout import Layout
 from famwise.resample import UnsettledWarning, bootstrap_hall, bootstrap_maxt, permutation_maxt
 
 ALPHA = 0.05

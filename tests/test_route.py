@@ -10,8 +10,8 @@ import pytest
 
 from famwise.diagnostics import Policy, run_checks
 from famwise.diagnostics.route import choose, crosscheck_procedure
-from famwise.families import all_pairs, contrasts, vs_reference
-from famwise.layout import Layout
+from famwise.core.families import all_pairs, contrasts, vs_reference
+from famwise.core.layout import Layout
 
 NO_CAL = Policy(calibrate_candidates=False)
 

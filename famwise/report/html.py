@@ -1,4 +1,4 @@
-"""The self-contained HTML report of a :class:`~famwise.results.Comparison`.
+"""The self-contained HTML report of a :class:`~famwise.core.results.Comparison`.
 
 One file, readable offline and printable: the style sheet is inline, the
 figures are inline SVG (:mod:`famwise.report.figures`), there is no
@@ -6,7 +6,7 @@ JavaScript, and a Content-Security-Policy forbids the page to fetch or run
 anything, so even a string that slipped past escaping could not load a
 resource.  Every user-supplied string (labels, column names, file names,
 notes, sentences that quote labels, the command line) goes through
-:func:`html.escape`; numbers through :func:`famwise.textformat.format_number`.
+:func:`html.escape`; numbers through :func:`famwise.report.textformat.format_number`.
 
 Sections, each a ``<section>`` with a stable ``id``:
 
@@ -35,7 +35,7 @@ from html import escape
 import numpy as np
 import pandas as pd
 
-from ..textformat import format_number
+from .textformat import format_number
 from . import figures
 
 __all__ = ["html_report", "SECTIONS", "CAUTIONS", "CSP"]
@@ -271,7 +271,7 @@ def _verdict(result) -> str:
 
 
 def _why(rec) -> str:
-    from ..procedures import CATALOGUE
+    from ..procedures.catalogue import CATALOGUE
     route = rec.route
     proc = route["procedure"]
     out = ["<h3>Why this procedure</h3>"]
@@ -304,7 +304,7 @@ def _rows(result) -> str:
     out.append(_table(["read", "used", "set aside"], [(led.read, led.used, len(led.dropped))],
                       numeric=(0, 1, 2)))
     if led.dropped:
-        from ..ledger import REASONS
+        from ..intake.ledger import REASONS
         out.append("<h3>Set aside, by reason</h3>")
         out.append(_table(["reason", "count"],
                           [(REASONS.get(k, k), v) for k, v in led.counts().items()],
@@ -585,7 +585,7 @@ def html_report(result) -> str:
 
     Parameters
     ----------
-    result : famwise.results.Comparison
+    result : famwise.core.results.Comparison
         What :func:`famwise.compare` returned.
 
     Returns

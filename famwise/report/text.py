@@ -11,7 +11,7 @@ import textwrap
 import numpy as np
 import pandas as pd
 
-from ..textformat import format_number, frame_text
+from .textformat import format_number, frame_text
 
 __all__ = ["summary_text", "CAUTION"]
 
@@ -25,7 +25,7 @@ def _interval(lo, hi) -> str:
 
 
 def summary_text(result, width: int = 100) -> str:
-    """Return the plain-text summary of a :class:`~famwise.results.Comparison`."""
+    """Return the plain-text summary of a :class:`~famwise.core.results.Comparison`."""
     rec = result.decision
     lay = result.layout
     led = rec.input["ledger"]

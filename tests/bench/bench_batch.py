@@ -27,7 +27,7 @@ import warnings
 import numpy as np
 import pandas as pd
 
-from famwise.batch import batch
+from famwise.batching import batch
 
 RESPONSES, K, N, B = 200, 8, 12, 1999
 ROWS, FAILED = [], []

@@ -35,9 +35,9 @@ import numpy as np
 from scipy import stats
 
 from famwise import Layout
-from famwise.classical import dunnett, tukey_kramer
-from famwise.families import all_pairs, vs_reference
-from famwise.letters import letter_display
+from famwise.procedures.classical import dunnett, tukey_kramer
+from famwise.core.families import all_pairs, vs_reference
+from famwise.procedures.letters import letter_display
 
 
 def _timed(fn, repeats):

@@ -14,7 +14,7 @@ import time
 import numpy as np
 from scipy import stats
 
-from famwise import distributions as D
+from famwise import distributions as D  # the package re-exports famwise.distributions.simultaneous
 
 
 def best_of(fun, repeat=3):

@@ -27,8 +27,8 @@ import warnings
 import numpy as np
 from scipy import stats
 
-from famwise.families import all_pairs
-from famwise.layout import Layout
+from famwise.core.families import all_pairs
+from famwise.core.layout import Layout
 from famwise.resample import (UnsettledWarning, bootstrap_hall, bootstrap_maxt,
                               permutation_maxt, permutation_stepdown)
 
@@ -71,8 +71,8 @@ def welch_max(*samples, axis=-1):
 BIG = textwrap.dedent("""
     import json, resource, sys, time, warnings
     import numpy as np
-    from famwise.layout import Layout
-    from famwise.families import all_pairs
+    from famwise.core.layout import Layout
+    from famwise.core.families import all_pairs
     from famwise.resample import permutation_maxt, UnsettledWarning
     warnings.simplefilter("ignore", UnsettledWarning)
     rng = np.random.default_rng(3)

@@ -20,7 +20,7 @@ import time
 import numpy as np
 
 from famwise import Layout, classical, unequal
-from famwise.families import all_pairs, vs_reference
+from famwise.core.families import all_pairs, vs_reference
 
 
 def _design(k: int, seed: int) -> Layout:

@@ -2,7 +2,7 @@
 
 Input checks of the layout and family, Student-t p-values and critical
 values, intervals by side, and the one call to
-:func:`famwise.table.comparisons_table` with the procedure's notes.
+:func:`famwise.core.table.comparisons_table` with the procedure's notes.
 """
 
 from __future__ import annotations
@@ -10,10 +10,10 @@ from __future__ import annotations
 import numpy as np
 from scipy import stats as _st
 
-from .errors import FamwiseInputError
-from .families import Family
-from .layout import Layout
-from .table import comparisons_table
+from ..core.errors import FamwiseInputError
+from ..core.families import Family
+from ..core.layout import Layout
+from ..core.table import comparisons_table
 
 
 def _fmt(x: float) -> str:
@@ -35,8 +35,8 @@ def _check_layout(layout) -> Layout:
 def _check_family(layout: Layout, family) -> Family:
     if not isinstance(family, Family):
         raise FamwiseInputError(
-            f"family must be a famwise.families.Family; got {type(family).__name__} "
-            f"(build one with famwise.families.build_family)")
+            f"family must be a famwise.core.families.Family; got {type(family).__name__} "
+            f"(build one with famwise.core.families.build_family)")
     if tuple(family.labels) != tuple(layout.labels):
         raise FamwiseInputError(
             f"family was built for groups {list(family.labels)} but the layout has "

@@ -15,12 +15,12 @@ over the common factor for Dunnett's product correlation) or a closed form
 2. tabulate ``log F`` and ``log(1 - F)`` once per shape parameter (``k``,
    ``lam``, ``m``) as piecewise Chebyshev series (cached; this module);
 3. integrate over ``s`` for every element at once in one compiled loop
-   (:mod:`famwise._mixture`: Gauss-Legendre panels on ``log s`` placed
+   (:mod:`famwise.distributions._mixture`: Gauss-Legendre panels on ``log s`` placed
    around the peak of each element's integrand, so an array of distinct
    ``df`` costs the same as one ``df``);
 4. for quantiles, safeguarded Newton steps on the log of the smaller tail
    with the density from the same integral, started from the ``df = inf``
-   quantile mapped through Student's t (:func:`famwise._mixture._quantile`).
+   quantile mapped through Student's t (:func:`famwise.distributions._mixture._quantile`).
 
 The smaller of the two tails is always integrated directly, so upper-tail
 probabilities keep their relative accuracy far out (no ``1 - cdf``).
@@ -36,7 +36,7 @@ from scipy import special
 
 from ._common_factor import _dunnett_log_tails
 from ._mixture import _GL_INNER_W, _GL_INNER_X, _Table, _evaluate, _panel_rule, _quantile
-from .errors import FamwiseInputError
+from ..core.errors import FamwiseInputError
 
 __all__ = [
     "srange_cdf",

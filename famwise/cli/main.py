@@ -12,8 +12,8 @@ import os
 import sys
 import warnings
 
-from . import __version__
-from .errors import FamwiseInputError, FamwiseWarning
+from ..core.version import __version__
+from ..core.errors import FamwiseInputError, FamwiseWarning
 
 __all__ = ["main", "build_parser"]
 
@@ -244,7 +244,7 @@ def _read_options(args) -> dict:
 
 
 def _read(args):
-    from .intake import read
+    from ..intake.reader import read
     return read(args.file, args.response, args.group, **_read_options(args))
 
 
@@ -253,7 +253,7 @@ def _inspection_text(ins) -> str:
 
     import pandas as pd
 
-    from .textformat import frame_text
+    from ..report.textformat import frame_text
     checks = pd.DataFrame([(c.name, c.verdict, c.statistic, c.p_value)
                            for c in ins.findings.checks],
                           columns=["check", "verdict", "statistic", "p-value"])
@@ -265,7 +265,7 @@ def _inspection_text(ins) -> str:
 
 
 def _run_inspect(args) -> int:
-    from .api import inspect
+    from ..api import inspect
     ins = inspect(args.file, args.response, args.group, policy=args.policy,
                   **_read_options(args))
     if args.quiet:
@@ -276,7 +276,7 @@ def _run_inspect(args) -> int:
                           "groups": ins.groups.to_dict(orient="records"),
                           "checks": ins.findings.to_records()}, indent=2, default=str))
     elif args.format == "csv":
-        from .output import safe_csv_text
+        from ..report.output import safe_csv_text
         sys.stdout.write(safe_csv_text(ins.groups))
     else:
         print(_inspection_text(ins))
@@ -284,7 +284,7 @@ def _run_inspect(args) -> int:
 
 
 def _compare(args, command):
-    from .api import compare
+    from ..api import compare
     return compare(args.file, args.response, args.group, family=args.family, reference=args.reference,
                    contrasts=args.contrasts, procedure=args.procedure, alpha=args.alpha,
                    alternative=args.alternative, margin=args.margin,
@@ -302,7 +302,7 @@ def _emit(result, args) -> None:
     if args.format == "json":
         print(result.decision.to_json())
     elif args.format == "csv":
-        from .output import safe_csv_text
+        from ..report.output import safe_csv_text
         sys.stdout.write(safe_csv_text(result.comparisons))
     else:
         print(result.summary())
@@ -314,16 +314,16 @@ def _run_compare(args) -> int:
     import shlex
     command = shlex.join(["famwise", *sys.argv[1:]]) if sys.argv[1:] else None
     if args.out:
-        from .output import prepare_folder
-        from .report.files import OUTPUT_FILES
+        from ..report.output import prepare_folder
+        from ..report.files import OUTPUT_FILES
         prepare_folder(args.out, OUTPUT_FILES, force=args.force)   # fail before the work
     _emit(_compare(args, command), args)
     return 0
 
 
 def _run_calibrate(args) -> int:
-    from .api import calibrate
-    from .textformat import frame_text
+    from ..api import calibrate
+    from ..report.textformat import frame_text
     result = calibrate(args.file, args.response, args.group, family=args.family,
                        reference=args.reference, contrasts=args.contrasts, alpha=args.alpha,
                        replicates=args.replicates, shape=args.shape, seed=args.seed,
@@ -331,7 +331,7 @@ def _run_calibrate(args) -> int:
     if args.format == "json":
         print(json.dumps(result.to_dict(), indent=2))
     elif args.format == "csv":
-        from .output import safe_csv_text
+        from ..report.output import safe_csv_text
         sys.stdout.write(safe_csv_text(result.table))
     else:
         print(frame_text(result.table[["procedure", "fwer", "se", "replicates", "holds"]]))
@@ -345,7 +345,7 @@ def _run_calibrate(args) -> int:
 def _run_batch(args) -> int:
     """famwise batch: exit 0, or 1 when a task hit an internal error (after writing)."""
     import shlex
-    from .batch import batch
+    from ..batching.run import batch
     if args.scheduler and args.backend != "dask":
         raise FamwiseInputError("--scheduler needs --backend dask")
     if args.family == "vs-reference" and not args.reference:
@@ -362,7 +362,7 @@ def _run_batch(args) -> int:
         if args.format == "json":
             print(result.to_json())
         elif args.format == "csv":
-            from .output import safe_csv_text
+            from ..report.output import safe_csv_text
             sys.stdout.write(safe_csv_text(result.table))
         else:
             print(result.summary())
@@ -376,7 +376,7 @@ def _run_batch(args) -> int:
 
 
 def _run_procedures(args) -> int:
-    from .procedures import CATALOGUE
+    from ..procedures.catalogue import CATALOGUE
     if args.format == "json":
         print(json.dumps([{"name": p.name, "route": p.route, "families": list(p.families),
                            "purpose": p.purpose} for p in CATALOGUE.values()], indent=2))
@@ -390,7 +390,7 @@ def _run_procedures(args) -> int:
 
 
 def _run_demo(args) -> int:
-    from .demo import run_demo
+    from ..scenarios.covercrop import run_demo
     text, folder = run_demo(args.out, force=args.force)
     if not args.quiet:
         print(text)

@@ -17,7 +17,7 @@ from typing import Iterable, Mapping
 
 import pandas as pd
 
-from .errors import FamwiseInputError
+from ..core.errors import FamwiseInputError
 
 __all__ = ["prepare_folder", "write_atomic", "write_files", "safe_csv_text",
            "neutralise_cell"]

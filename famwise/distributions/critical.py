@@ -53,7 +53,7 @@ def _solve_upper(sf_at, alpha: float, df: np.ndarray) -> np.ndarray:
             b[i] += 1.0
             gb[i] = g(b[i], i)
     else:
-        raise RuntimeError("famwise.unequal: could not bracket a critical value")
+        raise RuntimeError("famwise.procedures.unequal: could not bracket a critical value")
     x = 0.5 * (a + b)
     side = np.zeros(n)
     active = np.ones(n, bool)

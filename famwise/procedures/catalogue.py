@@ -1,7 +1,7 @@
 """The catalogue of procedures: identifier, home module, route and purpose.
 
 Every procedure is a function ``fn(layout, family, *, alpha=0.05, **options)``
-returning the comparisons table (:func:`famwise.table.comparisons_table`).
+returning the comparisons table (:func:`famwise.core.table.comparisons_table`).
 The catalogue names where each lives so that importing famwise stays cheap
 (numba kernels compile only when a resampling procedure is first used).
 ``famwise procedures`` prints this catalogue.
@@ -12,7 +12,7 @@ from __future__ import annotations
 import importlib
 from dataclasses import dataclass
 
-from .errors import FamwiseInputError, did_you_mean
+from ..core.errors import FamwiseInputError, did_you_mean
 
 __all__ = ["ProcedureInfo", "CATALOGUE", "check_procedure", "get_procedure",
            "run_procedure"]
@@ -32,47 +32,47 @@ _ALL = ("all-pairs", "vs-reference", "contrasts")
 _PAIRS = ("all-pairs", "vs-reference")
 
 CATALOGUE: dict[str, ProcedureInfo] = {p.name: p for p in [
-    ProcedureInfo("lsd", "famwise.classical", "lsd", "classical", _ALL,
+    ProcedureInfo("lsd", "famwise.procedures.classical", "lsd", "classical", _ALL,
                   "Fisher's least significant difference, unadjusted pooled t, "
                   "used only after a significant F test; controls the familywise "
                   "error rate only for three groups."),
-    ProcedureInfo("bonferroni", "famwise.classical", "bonferroni", "classical", _ALL,
+    ProcedureInfo("bonferroni", "famwise.procedures.classical", "bonferroni", "classical", _ALL,
                   "Pooled t with Bonferroni's m-fold adjustment; any family, "
                   "conservative when m is large."),
-    ProcedureInfo("sidak", "famwise.classical", "sidak", "classical", _ALL,
+    ProcedureInfo("sidak", "famwise.procedures.classical", "sidak", "classical", _ALL,
                   "Pooled t with Sidak's adjustment; slightly less conservative "
                   "than Bonferroni."),
-    ProcedureInfo("holm", "famwise.classical", "holm", "classical", _ALL,
+    ProcedureInfo("holm", "famwise.procedures.classical", "holm", "classical", _ALL,
                   "Pooled t with Holm's step-down adjustment; uniformly more "
                   "powerful than Bonferroni; no simultaneous intervals of its own."),
-    ProcedureInfo("tukey-kramer", "famwise.classical", "tukey_kramer", "classical",
+    ProcedureInfo("tukey-kramer", "famwise.procedures.classical", "tukey_kramer", "classical",
                   ("all-pairs", "contrasts"),
                   "Studentized range for all pairwise differences, equal "
                   "variances; exact for equal n, conservative for unequal n."),
-    ProcedureInfo("scheffe", "famwise.classical", "scheffe", "classical", _ALL,
+    ProcedureInfo("scheffe", "famwise.procedures.classical", "scheffe", "classical", _ALL,
                   "Scheffe's F-based intervals, valid for every contrast at once; "
                   "the choice for contrasts picked after seeing the data."),
-    ProcedureInfo("dunnett", "famwise.classical", "dunnett", "classical",
+    ProcedureInfo("dunnett", "famwise.procedures.classical", "dunnett", "classical",
                   ("vs-reference",),
                   "Each group against a reference, equal variances; one- or "
                   "two-sided."),
-    ProcedureInfo("welch", "famwise.unequal", "welch", "unequal", _ALL,
+    ProcedureInfo("welch", "famwise.procedures.unequal", "welch", "unequal", _ALL,
                   "Welch t with Satterthwaite df for each comparison, unadjusted."),
-    ProcedureInfo("welch-holm", "famwise.unequal", "welch_holm", "unequal", _ALL,
+    ProcedureInfo("welch-holm", "famwise.procedures.unequal", "welch_holm", "unequal", _ALL,
                   "Welch t with Holm's step-down adjustment."),
-    ProcedureInfo("games-howell", "famwise.unequal", "games_howell", "unequal",
+    ProcedureInfo("games-howell", "famwise.procedures.unequal", "games_howell", "unequal",
                   ("all-pairs",),
                   "All pairs under unequal variances: studentized range at each "
                   "pair's Welch df; mildly liberal with small groups."),
-    ProcedureInfo("dunnett-t3", "famwise.unequal", "dunnett_t3", "unequal",
+    ProcedureInfo("dunnett-t3", "famwise.procedures.unequal", "dunnett_t3", "unequal",
                   ("all-pairs", "contrasts"),
                   "Unequal variances, studentized maximum modulus at each "
                   "comparison's Welch df; holds its level with small groups."),
-    ProcedureInfo("welch-dunnett", "famwise.unequal", "welch_dunnett", "unequal",
+    ProcedureInfo("welch-dunnett", "famwise.procedures.unequal", "welch_dunnett", "unequal",
                   ("vs-reference",),
                   "Each group against a reference under unequal variances "
                   "(multivariate t with the Welch correlations)."),
-    ProcedureInfo("yuen-holm", "famwise.unequal", "yuen_holm", "unequal", _PAIRS,
+    ProcedureInfo("yuen-holm", "famwise.procedures.unequal", "yuen_holm", "unequal", _PAIRS,
                   "Trimmed means with winsorised variances (Yuen), Holm "
                   "adjusted; resists outliers and heavy tails."),
     ProcedureInfo("permutation-maxt", "famwise.resample.procedures",
@@ -93,7 +93,7 @@ CATALOGUE: dict[str, ProcedureInfo] = {p.name: p for p in [
                   "bootstrap_hall", "resample", _ALL,
                   "Bootstrap max-t of Welch statistics with Hall's skewness "
                   "correction; skewed data with small groups."),
-    ProcedureInfo("bh", "famwise.classical", "bh", "fdr", _ALL,
+    ProcedureInfo("bh", "famwise.procedures.classical", "bh", "fdr", _ALL,
                   "Benjamini-Hochberg false discovery rate (not familywise "
                   "error) on pooled t; exploratory families."),
 ]}

@@ -28,7 +28,7 @@ import math
 
 import numpy as np
 
-from .errors import FamwiseInputError
+from ..core.errors import FamwiseInputError
 
 __all__ = ["PRACTICAL", "classify", "check_margin"]
 

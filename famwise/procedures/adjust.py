@@ -50,7 +50,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .errors import FamwiseInputError
+from ..core.errors import FamwiseInputError
 
 __all__ = ["bonferroni", "sidak", "holm", "hochberg", "bh", "by", "ADJUSTMENTS",
            "adjust"]

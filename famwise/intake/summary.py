@@ -10,8 +10,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from .errors import FamwiseInputError
-from .layout import Layout
+from ..core.errors import FamwiseInputError
+from ..core.layout import Layout
 
 __all__ = ["SUMMARY_COLUMNS", "group_summary", "trimmed_mean"]
 

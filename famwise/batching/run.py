@@ -62,13 +62,13 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 
-from .adjust import bh, by as by_adjust
-from .errors import FamwiseInputError, FamwiseWarning
-from .intake import Intake, file_sha256, find_column, read
-from .ledger import Dropped, Ledger
-from .output import prepare_folder, safe_csv_text, write_atomic
+from ..procedures.adjust import bh, by as by_adjust
+from ..core.errors import FamwiseInputError, FamwiseWarning
+from ..intake.reader import Intake, file_sha256, find_column, read
+from ..intake.ledger import Dropped, Ledger
+from ..report.output import prepare_folder, safe_csv_text, write_atomic
 
-__all__ = ["batch", "BatchResult", "BatchWarning", "BATCH_SCHEMA", "BATCH_FILES",
+__all__ = ["batch", "BatchResult", "BatchWarning", "BATCH_SCHEMA", "BATCH_FILES", "CENSORED_CAUTION",
            "fdr_screen", "folder_name", "numeric_columns", "task_seed"]
 
 BATCH_SCHEMA = "famwise.batch/1"
@@ -140,7 +140,7 @@ class BatchResult:
 
     def summary(self, width: int = 100) -> str:
         """Return the text summary: counts, the FDR line, the table, reasons, cautions."""
-        from .textformat import frame_text
+        from ..report.textformat import frame_text
         import textwrap
         rec = self.record
         t = self.table
@@ -199,7 +199,7 @@ class BatchResult:
         refused unless ``force``.  Files rendered by the workers (``out=`` of
         :func:`batch`) are reused; others are rendered here.
         """
-        from .report.files import OUTPUT_FILES, render_files
+        from ..report.files import OUTPUT_FILES, render_files
         folder = os.fspath(folder)
         prepare_folder(folder, BATCH_FILES, force=force)
         ok = self.table[self.table["status"] == "ok"]
@@ -231,7 +231,7 @@ class BatchResult:
 
 def _display(view: pd.DataFrame) -> pd.DataFrame:
     """Pre-format numeric columns holding missing values ("-"), right-aligned."""
-    from .textformat import format_number
+    from ..report.textformat import format_number
     view = view.copy()
     for c in view.columns:
         col = view[c]
@@ -311,7 +311,7 @@ def numeric_columns(raw, skip=(), decimal=".") -> tuple[list[int], list[dict]]:
     analyte written mostly as ``"<DL"`` stays in (and its task reports that
     it has too few numbers), while dates, notes and sample codes stay out.
     """
-    from .intake import parse_values
+    from ..intake.reader import parse_values
     chosen, skipped = [], []
     for j, name in enumerate(raw.header):
         if j in skip:
@@ -386,8 +386,8 @@ def _remap(intake: Intake, rows: np.ndarray, source: str, notes) -> Intake:
 
 
 def _omnibus(result):
-    from .classical import anova_table
-    from .unequal import welch_anova
+    from ..procedures.classical import anova_table
+    from ..procedures.unequal import welch_anova
     route = result.decision.route["route"]
     if route in ("classical", "fdr"):
         return "anova-f", float(anova_table(result.layout).p)
@@ -400,7 +400,7 @@ def _omnibus(result):
 def _run_task(task: _Task, source: str, group: str, notes, options: dict, render: bool,
               quiet: bool) -> _Outcome:
     """Run one task (in a worker): read the subset, compare, omnibus p, render."""
-    from .api import compare
+    from ..api import compare
     start = time.perf_counter()
     where = repr(source) + (f" ({options['by']} = {task.stratum!r})"
                             if task.stratum is not None else "")
@@ -433,7 +433,7 @@ def _run_task(task: _Task, source: str, group: str, notes, options: dict, render
         name, p = _omnibus(result)
         files = None
         if render:
-            from .report.files import render_files
+            from ..report.files import render_files
             files = render_files(result)
         row, record = _task_summary(result, name, p)
     return _Outcome(task.index, "ok", "", result, name, p, result.ledger, files,
@@ -626,10 +626,10 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
     ...             seed=1, n_jobs=2)                         # doctest: +SKIP
     >>> res.table[["response", "procedure", "omnibus_q"]]     # doctest: +SKIP
     """
-    from .api import _policy
-    from .intake import load_table
-    from .procedures import check_procedure
-    from .validate import check_alpha
+    from ..api import _policy
+    from ..intake.reader import load_table
+    from ..procedures.catalogue import check_procedure
+    from ..core.validate import check_alpha
     started = time.perf_counter()
     alpha = check_alpha(alpha)
     if fdr not in _FDR:
@@ -746,7 +746,7 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
         cautions.append(" ".join(str(caution).split()))
     ok = table["status"] == "ok"
     p_ok = table["omnibus_p"].notna() & ok
-    from .results import environment
+    from ..core.results import environment
     record = {
         "schema": BATCH_SCHEMA,
         "input": {"source": source, "sha256": _sha256(data), "group": header[g],
@@ -786,7 +786,7 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
 
 def _has_censored(raw, columns, decimal) -> bool:
     """Whether any response cell is a non-detect or below-limit text."""
-    from .intake import parse_values
+    from ..intake.reader import parse_values
     return any(np.isin(parse_values(raw.body[j], decimal)[1], _CENSORED_REASONS).any()
                for j in columns)
 
@@ -875,8 +875,8 @@ def fdr_screen(p, method: str = "bh", level: float = 0.05):
 
     Entries that are NaN (tasks that did not run, or had no omnibus p-value)
     stay out of the family: their adjusted value is NaN and their decision
-    is missing (``pd.NA``).  Uses :func:`famwise.adjust.bh` /
-    :func:`famwise.adjust.by`.
+    is missing (``pd.NA``).  Uses :func:`famwise.procedures.adjust.bh` /
+    :func:`famwise.procedures.adjust.by`.
 
     Returns
     -------

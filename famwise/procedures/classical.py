@@ -67,13 +67,13 @@ import pandas as pd
 from scipy import stats as _st
 
 from . import adjust as _adjust
-from ._procedure_tools import (_check_alternative, _check_family, _interval,
+from ._shared import (_check_alternative, _check_family, _interval,
                                _offending_contrast, _sided, _t_crit, _t_pvalue)
-from .errors import FamwiseInputError
-from .families import Family
-from .layout import Layout, group_stats
-from .table import comparisons_table
-from .validate import check_alpha
+from ..core.errors import FamwiseInputError
+from ..core.families import Family
+from ..core.layout import Layout, group_stats
+from ..core.table import comparisons_table
+from ..core.validate import check_alpha
 
 __all__ = ["AnovaTable", "anova_table", "PooledEstimates", "pooled_estimates",
            "lsd", "bonferroni", "sidak", "holm", "tukey_kramer", "scheffe",
@@ -587,7 +587,7 @@ def tukey_kramer(layout: Layout, family: Family, *, alpha: float = 0.05,
     Data of the ``scipy.stats.tukey_hsd`` docstring (three brands of five):
 
     >>> from famwise import Layout
-    >>> from famwise.families import all_pairs
+    >>> from famwise.core.families import all_pairs
     >>> lay = Layout.from_groups([[24.5, 23.5, 26.4, 27.1, 29.9],
     ...                           [28.4, 34.2, 29.5, 32.2, 30.1],
     ...                           [26.1, 28.3, 24.3, 26.2, 27.8]])
@@ -602,7 +602,7 @@ def tukey_kramer(layout: Layout, family: Family, *, alpha: float = 0.05,
             f"tukey-kramer handles differences of two group means only; contrast "
             f"{_offending_contrast(family)!r} is not one (use 'scheffe' or "
             f"'bonferroni' for general contrasts)")
-    from .distributions import srange_ppf, srange_sf
+    from ..distributions.simultaneous import srange_ppf, srange_sf
 
     s, alpha, pe = _setup(layout, family, alpha, alternative, ("two-sided",), "tukey-kramer")
     k_eff = int(np.unique(family.pairs).size)
@@ -704,7 +704,7 @@ def dunnett(layout: Layout, family: Family, *, alpha: float = 0.05,
     Dunnett's (1955) blood-count example (control, drug A, drug B):
 
     >>> from famwise import Layout
-    >>> from famwise.families import vs_reference
+    >>> from famwise.core.families import vs_reference
     >>> lay = Layout.from_groups([[7.40, 8.50, 7.20, 8.24, 9.84, 8.32],
     ...                           [9.76, 8.80, 7.68, 9.36],
     ...                           [12.80, 9.68, 12.16, 9.20, 10.55]],
@@ -718,7 +718,7 @@ def dunnett(layout: Layout, family: Family, *, alpha: float = 0.05,
         raise FamwiseInputError(
             f"dunnett compares each group with a reference group; build the family "
             f"with family='vs-reference' and reference=LABEL (got {family.kind!r})")
-    from .distributions import dunnett_ppf, dunnett_sf
+    from ..distributions.simultaneous import dunnett_ppf, dunnett_sf
 
     s, alpha, pe = _setup(layout, family, alpha, alternative, ALTERNATIVES, "dunnett")
     treat = family.pairs[:, 0]

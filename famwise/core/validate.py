@@ -1,7 +1,7 @@
 """Validation of the options shared by the API and the command line.
 
 Each check names the option, the allowed values and what it received, in one
-line (a :class:`~famwise.errors.FamwiseInputError`).
+line (a :class:`~famwise.core.errors.FamwiseInputError`).
 """
 
 from __future__ import annotations

@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .procedures import CATALOGUE, run_procedure
+from .catalogue import CATALOGUE, run_procedure
 
 __all__ = ["CrossCheck", "crosscheck", "compare_tables"]
 

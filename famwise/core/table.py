@@ -21,7 +21,7 @@ cross-check, the letters and the report read one set of columns:
 ``practical``     (with a margin only) the practical classification
 
 This module sits at the bottom of the package: it imports nothing else from
-famwise but :mod:`famwise.families` and :mod:`famwise.errors`.
+famwise but :mod:`famwise.core.families` and :mod:`famwise.core.errors`.
 """
 
 from __future__ import annotations

@@ -26,7 +26,7 @@ yuen_holm      pairs                       Yuen trimmed-mean t; Holm p-values,
 =============  ==========================  ===================================
 
 ``welch_anova`` is Welch's (1951) omnibus test of equal means.  Yuen's
-trimmed-mean procedure lives in :mod:`famwise.trimmed` (``yuen_holm``,
+trimmed-mean procedure lives in :mod:`famwise.procedures.trimmed` (``yuen_holm``,
 ``trimmed_summary``, ``TrimmedSummary``, re-exported here).
 
 The vectorised cores :func:`welch_statistics`, :func:`games_howell_pvalues`
@@ -36,7 +36,7 @@ rather than raw data and calls the distribution functions once per batch;
 :func:`games_howell_rejects` and :func:`dunnett_t3_rejects` give the same
 decisions at one alpha for a fraction of the cost.  Per-comparison critical
 values at many distinct df come from :func:`critical_values_over_df`
-(:mod:`famwise.critical`, re-exported here; Chebyshev interpolation in
+(:mod:`famwise.distributions.critical`, re-exported here; Chebyshev interpolation in
 df with an error check), so the cost of a
 procedure does not grow with the number of distinct df.
 
@@ -75,15 +75,15 @@ import pandas as pd
 from scipy import stats as _st
 
 from . import adjust as _adjust
-from . import distributions as _dist
-from ._procedure_tools import (_check_family, _check_layout, _fmt, _interval,
+from ..distributions import simultaneous as _dist
+from ._shared import (_check_family, _check_layout, _fmt, _interval,
                               _offending_contrast, _sided, _t_crit, _t_pvalue, _table)
-from .critical import critical_values_over_df
-from .errors import FamwiseInputError
-from .families import Family, all_pairs
-from .layout import Layout, group_stats
+from ..distributions.critical import critical_values_over_df
+from ..core.errors import FamwiseInputError
+from ..core.families import Family, all_pairs
+from ..core.layout import Layout, group_stats
 from .trimmed import TrimmedSummary, trimmed_summary, yuen_holm
-from .validate import check_alpha, check_alternative
+from ..core.validate import check_alpha, check_alternative
 
 __all__ = [
     "WelchAnova", "welch_anova",
@@ -634,7 +634,7 @@ def games_howell(layout: Layout, family: Family, *, alpha: float = 0.05,
     The unequal-n check set of scipy's own Games-Howell tests:
 
     >>> from famwise import Layout
-    >>> from famwise.families import all_pairs
+    >>> from famwise.core.families import all_pairs
     >>> lay = Layout.from_groups([[30, 23, 51], [-81, 71, -27, 63],
     ...                           [42, 11, 29, 19, 50], [23, 22, 20, 18, 9]])
     >>> tab = games_howell(lay, all_pairs(lay.labels))

@@ -1,4 +1,4 @@
-"""Read a file or DataFrame into a :class:`~famwise.layout.Layout` and a Ledger.
+"""Read a file or DataFrame into a :class:`~famwise.core.layout.Layout` and a Ledger.
 
 Sources: CSV/TSV/TXT (delimiter sniffed among ``, ; tab |``; UTF-8 with or
 without a byte-order mark, UTF-16 with one, or an encoding you name; decimal
@@ -17,7 +17,7 @@ missing response, censored text (``"<0.5"``), a non-detect marker
 (``"n.d."``), other text, an infinite value, a missing group label, a blank
 row, or (wide layout) an empty cell.  Labels are stripped of surrounding
 space; labels that differ only by letter case or inner spacing raise a
-:class:`~famwise.errors.LabelSpellingWarning` naming the spellings and their
+:class:`~famwise.core.errors.LabelSpellingWarning` naming the spellings and their
 counts, and are merged only with ``merge_spellings=True``.
 """
 
@@ -35,8 +35,8 @@ from typing import Sequence
 import numpy as np
 import pandas as pd
 
-from .errors import FamwiseInputError, did_you_mean, LabelSpellingWarning
-from .layout import Layout
+from ..core.errors import FamwiseInputError, did_you_mean, LabelSpellingWarning
+from ..core.layout import Layout
 from .ledger import Dropped, Ledger
 
 __all__ = ["Intake", "read", "file_sha256", "load_table", "parse_values", "find_column", "RawTable", "TEXT_SUFFIXES", "EXCEL_SUFFIXES", "PARQUET_SUFFIXES"]

@@ -1,7 +1,9 @@
-"""Result types: the decision record and the Comparison returned by compare().
+"""The decision record: why a procedure was chosen, and how to reproduce the run.
 
-These sit low in the package (they import no procedure module), so the
-procedures, the cross-check and the report all depend downward on them.
+It sits low in the package (it imports no stage), so the procedures, the
+cross-check and the report all depend downward on it.  The :class:`Comparison`
+that :func:`famwise.compare` returns lives in :mod:`famwise.comparison`, above
+the report it renders through.
 
 Decision record schema (``schema = "famwise.decision/1"``); every key is
 always present, ``null`` where it does not apply:
@@ -33,9 +35,7 @@ import sys
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
-import pandas as pd
-
-__all__ = ["SCHEMA", "DecisionRecord", "Comparison", "environment"]
+__all__ = ["SCHEMA", "DecisionRecord", "environment"]
 
 SCHEMA = "famwise.decision/1"
 
@@ -45,7 +45,7 @@ def environment() -> dict:
     import numpy
     import scipy
 
-    from . import __version__
+    from .version import __version__
     try:
         import numba
         numba_version = numba.__version__
@@ -53,7 +53,7 @@ def environment() -> dict:
         numba_version = None
     return {"famwise": __version__, "python": sys.version.split()[0],
             "numpy": numpy.__version__, "scipy": scipy.__version__,
-            "pandas": pd.__version__, "numba": numba_version,
+            "pandas": _pandas_version(), "numba": numba_version,
             "platform": platform.platform()}
 
 
@@ -140,63 +140,6 @@ def _jsonable(x):
     raise TypeError(f"cannot serialise {type(x).__name__}")
 
 
-@dataclass(frozen=True)
-class Comparison:
-    """What :func:`famwise.compare` returns.
-
-    Attributes
-    ----------
-    groups : DataFrame
-        One row per group: the summary (n, mean, SD, ...) and, for all-pairs
-        families, the compact letters (``letters``; ``a`` = largest mean).
-    comparisons : DataFrame
-        The comparisons table of the chosen procedure (famwise.table).
-    decision : DecisionRecord
-        Why the procedure was chosen, and everything needed to reproduce it.
-    crosscheck : CrossCheck or None
-        Agreement with the independent second route.
-    ledger : Ledger
-        Every input row: used, or set aside and why.
-    findings : Findings
-        The diagnostic checks.
-    """
-
-    groups: pd.DataFrame = field(repr=False)
-    comparisons: pd.DataFrame = field(repr=False)
-    decision: DecisionRecord = field(repr=False)
-    crosscheck: Any = field(repr=False)
-    ledger: Any = field(repr=False)
-    findings: Any = field(repr=False)
-    layout: Any = field(repr=False)
-    family: Any = field(repr=False)
-    calibration: Any = field(default=None, repr=False)
-
-    @property
-    def procedure(self) -> str:
-        return self.decision.route["procedure"]
-
-    def __repr__(self) -> str:
-        n_rej = int(self.comparisons["reject"].sum())
-        return (f"Comparison(procedure={self.procedure!r}, comparisons={len(self.comparisons)}, "
-                f"declared_different={n_rej}, alpha={self.decision.alpha:g})")
-
-    def summary(self, width: int = 100) -> str:
-        """Return the text summary (fits ``width`` columns)."""
-        from .report.text import summary_text
-        return summary_text(self, width=width)
-
-    def save(self, folder, force: bool = False) -> list[str]:
-        """Write comparisons.csv, groups.csv, decision.json, report.html and
-        summary.txt into ``folder`` (atomically; refuses to overwrite without
-        ``force``).  Returns the paths written."""
-        from .report.files import save
-        return save(self, folder, force=force)
-
-    def to_html(self, path=None) -> str:
-        """Return the self-contained HTML report; write it to ``path`` if given."""
-        from .report.html import html_report
-        text = html_report(self)
-        if path is not None:
-            from .output import write_atomic
-            write_atomic(str(path), text)
-        return text
+def _pandas_version():
+    import pandas
+    return pandas.__version__

@@ -93,9 +93,9 @@ def run_demo(folder: str = "out/demo", force: bool = False) -> tuple[str, str]:
     """
     import os
 
-    from .api import compare
-    from .output import prepare_folder, write_atomic
-    from .report.files import OUTPUT_FILES
+    from ..api import compare
+    from ..report.output import prepare_folder, write_atomic
+    from ..report.files import OUTPUT_FILES
 
     data_name = "covercrop_nitrate.csv"
     review = os.path.join(folder, "after-review")

@@ -43,7 +43,7 @@ from typing import Sequence
 import numpy as np
 import pandas as pd
 
-from .errors import FamwiseInputError
+from ..core.errors import FamwiseInputError
 
 __all__ = ["LetterDisplay", "letter_display", "compact_letters", "reject_matrix",
            "letter_names"]

@@ -40,9 +40,9 @@ import numpy as np
 import pandas as pd
 from scipy import special
 
-from .errors import FamwiseInputError
-from .families import Family, all_pairs
-from .layout import Layout, group_stats
+from ..core.errors import FamwiseInputError
+from ..core.families import Family, all_pairs
+from ..core.layout import Layout, group_stats
 
 __all__ = ["correction_factor", "hedges_g"]
 

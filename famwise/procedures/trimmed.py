@@ -24,12 +24,12 @@ import numpy as np
 import pandas as pd
 
 from . import adjust as _adjust
-from ._procedure_tools import (_check_family, _check_layout, _fmt, _interval, _offending_contrast,
+from ._shared import (_check_family, _check_layout, _fmt, _interval, _offending_contrast,
                               _sided, _t_crit, _t_pvalue, _table)
-from .errors import FamwiseInputError
-from .families import Family
-from .layout import Layout
-from .validate import check_alpha, check_alternative
+from ..core.errors import FamwiseInputError
+from ..core.families import Family
+from ..core.layout import Layout
+from ..core.validate import check_alpha, check_alternative
 
 __all__ = ["TrimmedSummary", "trimmed_summary", "yuen_holm"]
 

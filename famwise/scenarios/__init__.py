@@ -1,0 +1,1 @@
+"""The invented demo scenarios: a cover-crop field trial and a river water-quality survey."""
