@@ -31,7 +31,8 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
-from famwise import FamwiseInputError, Layout, adjust, classical, distributions, unequal
+from famwise import FamwiseInputError, Layout, distributions
+from famwise.procedures import adjust, classical, unequal
 from famwise.core.families import all_pairs, contrasts, vs_reference
 from famwise.procedures import run_procedure
 

@@ -19,7 +19,8 @@ import time
 
 import numpy as np
 
-from famwise import Layout, classical, unequal
+from famwise import Layout
+from famwise.procedures import classical, unequal
 from famwise.core.families import all_pairs, vs_reference
 
 
