@@ -133,7 +133,7 @@ def _unequal_all_pairs(layout, policy, alpha, seed):
             f"The smallest group has {n_min} observations; Games-Howell is mildly liberal "
             f"with small groups, so Dunnett's T3 is used."], None, [Alternative(
                 "games-howell", "mildly liberal with small groups")]
-    from .calibrate import quick_fwer
+    from .quick import quick_fwer
     st = layout.stats
     cal = {name: quick_fwer(name, st.n, st.sd, alpha=alpha,
                             replicates=policy.calibration_replicates, seed=seed)

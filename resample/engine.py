@@ -23,6 +23,7 @@ import os
 import sys
 import time
 import warnings
+from contextlib import ExitStack
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -30,6 +31,7 @@ import numpy as np
 
 from ..core.errors import FamwiseInputError
 from . import kernels
+from .dask_client import dask_session
 
 __all__ = ["BACKENDS", "ResamplingProblem", "ChunkResult", "ResamplingRun",
            "as_seed_sequence", "chunk_seed", "chunk_sizes", "default_chunk_size",
@@ -202,31 +204,6 @@ def _want_progress(progress, estimate: float) -> bool:
     return tty and not os.environ.get("CI") and estimate > _PROGRESS_AFTER
 
 
-def _dask_config(scheduler):
-    import joblib
-    try:
-        import distributed
-    except ImportError:  # pragma: no cover - optional dependency
-        raise FamwiseInputError(
-            "backend='dask' needs dask.distributed; install famwise[dask]") from None
-    if scheduler is None:
-        try:
-            client = distributed.get_client()
-        except ValueError:
-            raise FamwiseInputError(
-                "backend='dask' needs a running dask.distributed Client or "
-                "scheduler=ADDRESS; none was found") from None
-        return joblib.parallel_config(backend="dask", client=client), None
-    if isinstance(scheduler, str):
-        client = distributed.Client(scheduler, set_as_default=False)
-        return joblib.parallel_config(backend="dask", client=client), client
-    if isinstance(scheduler, distributed.Client):
-        return joblib.parallel_config(backend="dask", client=scheduler), None
-    raise FamwiseInputError(
-        f"scheduler must be a dask.distributed Client or an address string; "
-        f"got {type(scheduler).__name__}")
-
-
 def _execute(problem, stepdown, tasks, n_jobs, backend, scheduler, on_chunk):
     """Run ``tasks`` [(index, size, state)] and call ``on_chunk(i, result)``."""
     import joblib
@@ -236,29 +213,25 @@ def _execute(problem, stepdown, tasks, n_jobs, backend, scheduler, on_chunk):
         return
     calls = (joblib.delayed(_run_chunk)(problem, stepdown, size, state)
              for _, size, state in tasks)
-    opened = None
-    if backend == "dask":
-        config, opened = _dask_config(scheduler)
-    else:
-        config = joblib.parallel_config(prefer=backend)
-    try:
-        with config:
-            gen = joblib.Parallel(n_jobs=n_jobs, return_as="generator")(calls)
-            try:
-                for (index, _, _), result in zip(tasks, gen):
-                    on_chunk(index, result)
-            finally:
-                # On KeyboardInterrupt (or any error) stop the queued chunks;
-                # nothing partial leaves this function.
-                close = getattr(gen, "close", None)
-                if close is not None:
-                    with warnings.catch_warnings():
-                        # joblib reports chunks finished but not collected.
-                        warnings.simplefilter("ignore", UserWarning)
-                        close()
-    finally:
-        if opened is not None:
-            opened.close()
+    with ExitStack() as stack:
+        if backend == "dask":
+            session = stack.enter_context(dask_session(scheduler, n_jobs=n_jobs))
+            stack.enter_context(joblib.parallel_config(backend="dask", client=session.client))
+        else:
+            stack.enter_context(joblib.parallel_config(prefer=backend))
+        gen = joblib.Parallel(n_jobs=n_jobs, return_as="generator")(calls)
+        try:
+            for (index, _, _), result in zip(tasks, gen):
+                on_chunk(index, result)
+        finally:
+            # On KeyboardInterrupt (or any error) stop the queued chunks;
+            # nothing partial leaves this function.
+            close = getattr(gen, "close", None)
+            if close is not None:
+                with warnings.catch_warnings():
+                    # joblib reports chunks finished but not collected.
+                    warnings.simplefilter("ignore", UserWarning)
+                    close()
 
 
 def run_resamples(problem: ResamplingProblem, *, resamples: int,

@@ -1,5 +1,5 @@
 """The ``famwise`` command line (a thin layer over the Python API)."""
 
-from .main import build_parser, main
+from .commands import build_parser, main
 
 __all__ = ["main", "build_parser"]

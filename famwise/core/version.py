@@ -1,8 +1,8 @@
-"""The installed version of famwise (read once from the package metadata)."""
+"""The version of famwise: the one place it is written.
 
-from importlib.metadata import PackageNotFoundError, version as _version
+``pyproject.toml`` reads it from here (``[tool.setuptools.dynamic]``), so the
+installed metadata and ``famwise --version`` always agree, and start-up does
+not pay for ``importlib.metadata``.
+"""
 
-try:
-    __version__ = _version("famwise")
-except PackageNotFoundError:  # running from a source tree without install
-    __version__ = "0.0.0+unknown"
+__version__ = "0.2.0"
