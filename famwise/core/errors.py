@@ -16,6 +16,7 @@ __all__ = [
     "LabelSpellingWarning",
     "SmallGroupWarning",
     "DroppedRowsWarning",
+    "ModelWarning",
 ]
 
 
@@ -45,6 +46,11 @@ class SmallGroupWarning(FamwiseWarning):
 
 class DroppedRowsWarning(FamwiseWarning):
     """Input rows were set aside (each one is listed in the Ledger)."""
+
+
+class ModelWarning(FamwiseWarning):
+    """The design weakens some comparisons (a group confined to one block, a
+    block column that looks like measurements, ...)."""
 
 
 def did_you_mean(value, options) -> str:

@@ -17,7 +17,7 @@ import numpy as np
 
 from .errors import FamwiseInputError
 
-__all__ = ["Layout", "GroupStats", "group_stats"]
+__all__ = ["Layout", "Design", "GroupStats", "group_stats"]
 
 
 @dataclass(frozen=True)
@@ -70,6 +70,129 @@ def group_stats(values: np.ndarray, codes: np.ndarray, k: int) -> GroupStats:
     return GroupStats(n=n, mean=mean, var=var)
 
 
+def _label_codes(labels) -> tuple[np.ndarray, tuple[str, ...]]:
+    """Return int64 codes (order of first appearance) and the level labels."""
+    arr = [str(x) for x in labels]
+    order: dict[str, int] = {}
+    codes = np.fromiter((order.setdefault(x, len(order)) for x in arr), dtype=np.int64,
+                        count=len(arr))
+    return codes, tuple(order)
+
+
+@dataclass(frozen=True, eq=False)
+class Design:
+    """Blocking factors and covariates that go with a layout's observations.
+
+    Plain data, built by :mod:`famwise.intake` (``block=``, ``covariates=``)
+    or by :meth:`Design.from_arrays`; :func:`famwise.model.fit_model` turns it
+    into the additive model ``response = group + block(s) + covariate(s)``.
+
+    Attributes
+    ----------
+    block_names : tuple of str
+        Names of the blocking factors (none, one, or two for row and column
+        blocks of a Latin square), usually the column names.
+    block_codes : tuple of ndarray of int64, shape (N,) each
+        Level index of each observation, ``0 .. b-1`` per factor.
+    block_labels : tuple of tuple of str
+        ``block_labels[f][c]`` names level ``c`` of factor ``f``.
+    covariate_names : tuple of str
+    covariates : ndarray of float64, shape (N, p)
+        One column per covariate (``p = 0`` when there are none).
+    """
+
+    block_names: tuple[str, ...] = ()
+    block_codes: tuple[np.ndarray, ...] = ()
+    block_labels: tuple[tuple[str, ...], ...] = ()
+    covariate_names: tuple[str, ...] = ()
+    covariates: np.ndarray = field(default=None, repr=False)
+
+    def __post_init__(self):
+        names = tuple(str(x) for x in self.block_names)
+        codes = tuple(np.ascontiguousarray(c, dtype=np.int64) for c in self.block_codes)
+        labels = tuple(tuple(str(x) for x in lv) for lv in self.block_labels)
+        if not (len(names) == len(codes) == len(labels)):
+            raise FamwiseInputError(
+                f"a design needs one name, one code array and one label set per blocking "
+                f"factor; got {len(names)}, {len(codes)} and {len(labels)}")
+        if len(names) > 2:
+            raise FamwiseInputError(
+                f"at most two blocking factors (rows and columns) are supported; got "
+                f"{len(names)}: {list(names)}")
+        cov_names = tuple(str(x) for x in self.covariate_names)
+        cov = (np.empty((codes[0].size if codes else 0, 0)) if self.covariates is None
+               else np.asarray(self.covariates, dtype=np.float64))
+        if cov.ndim == 1:
+            cov = cov[:, None]
+        cov = np.ascontiguousarray(cov)
+        if cov.shape[1] != len(cov_names):
+            raise FamwiseInputError(
+                f"got {cov.shape[1]} covariate columns but {len(cov_names)} covariate names")
+        for c, lv, nm in zip(codes, labels, names):
+            if c.ndim != 1 or (c.size and (c.min() < 0 or c.max() >= len(lv))):
+                raise FamwiseInputError(
+                    f"block codes of {nm!r} must be 1-D integers in 0..{len(lv) - 1}")
+            c.flags.writeable = False
+        cov.flags.writeable = False
+        object.__setattr__(self, "block_names", names)
+        object.__setattr__(self, "block_codes", codes)
+        object.__setattr__(self, "block_labels", labels)
+        object.__setattr__(self, "covariate_names", cov_names)
+        object.__setattr__(self, "covariates", cov)
+
+    @classmethod
+    def from_arrays(cls, blocks=None, covariates=None) -> "Design":
+        """Build a design from label arrays and numeric arrays.
+
+        Parameters
+        ----------
+        blocks : mapping name -> labels, or sequence of label arrays, optional
+            One or two blocking factors; labels are read as text, levels
+            numbered in order of first appearance.
+        covariates : mapping name -> values, (N,) or (N, p) array, optional
+        """
+        names, codes, labels = [], [], []
+        if blocks is not None:
+            items = (list(blocks.items()) if isinstance(blocks, dict) else
+                     [(f"block{i + 1}" if i else "block", b) for i, b in enumerate(blocks)])
+            for name, lab in items:
+                c, lv = _label_codes(lab)
+                names.append(name)
+                codes.append(c)
+                labels.append(lv)
+        cov_names, cov = (), None
+        if covariates is not None:
+            if isinstance(covariates, dict):
+                cov_names = tuple(covariates)
+                cov = np.column_stack([np.asarray(v, dtype=np.float64)
+                                       for v in covariates.values()])
+            else:
+                cov = np.asarray(covariates, dtype=np.float64)
+                cov = cov[:, None] if cov.ndim == 1 else cov
+                cov_names = tuple(f"covariate{i + 1}" if i else "covariate"
+                                  for i in range(cov.shape[1]))
+        if cov is None:
+            n = codes[0].size if codes else 0
+            cov = np.empty((n, 0))
+        return cls(tuple(names), tuple(codes), tuple(labels), cov_names, cov)
+
+    @property
+    def n_obs(self) -> int:
+        if self.block_codes:
+            return int(self.block_codes[0].size)
+        return int(self.covariates.shape[0])
+
+    @property
+    def is_empty(self) -> bool:
+        """True when the design has neither blocks nor covariates (one-way)."""
+        return not self.block_names and not self.covariate_names
+
+    def take(self, index) -> "Design":
+        """Return the design restricted to observations ``index`` (levels kept)."""
+        return Design(self.block_names, tuple(c[index] for c in self.block_codes),
+                      self.block_labels, self.covariate_names, self.covariates[index])
+
+
 @dataclass(frozen=True)
 class Layout:
     """Observations of one response, with a group code for each.
@@ -87,6 +210,9 @@ class Layout:
         :mod:`famwise.intake` for how rows are counted).
     response, group, source : str
         Names of the response and group columns and of the source.
+    design : Design or None
+        Blocking factors and covariates of the observations (None: the
+        one-way layout).  :func:`famwise.model.fit_model` reads it.
     """
 
     values: np.ndarray
@@ -96,6 +222,7 @@ class Layout:
     response: str = "response"
     group: str = "group"
     source: str = "<arrays>"
+    design: Design | None = field(default=None, repr=False, compare=False)
 
     def __post_init__(self):
         values = np.ascontiguousarray(self.values, dtype=np.float64)
@@ -110,6 +237,18 @@ class Layout:
         object.__setattr__(self, "codes", codes)
         object.__setattr__(self, "rows", rows)
         object.__setattr__(self, "labels", tuple(str(x) for x in self.labels))
+        design = self.design
+        if design is not None:
+            if not isinstance(design, Design):
+                raise FamwiseInputError(
+                    f"design must be a famwise.core.layout.Design; got {type(design).__name__}")
+            if design.is_empty:
+                design = None
+            elif design.n_obs != values.size:
+                raise FamwiseInputError(
+                    f"the design describes {design.n_obs} observations but the layout "
+                    f"has {values.size} values")
+            object.__setattr__(self, "design", design)
         values.flags.writeable = False
         codes.flags.writeable = False
 
@@ -128,6 +267,16 @@ class Layout:
         codes = np.repeat(np.arange(len(arrays)), [a.size for a in arrays])
         return cls(values=values, codes=codes, labels=tuple(labels),
                    response=response, group=group)
+
+    def with_design(self, blocks=None, covariates=None) -> "Layout":
+        """Return this layout with blocks and covariates (see :meth:`Design.from_arrays`)."""
+        from dataclasses import replace
+        return replace(self, design=Design.from_arrays(blocks, covariates))
+
+    @property
+    def is_oneway(self) -> bool:
+        """True when the layout has neither blocks nor covariates."""
+        return self.design is None
 
     @property
     def k(self) -> int:

@@ -60,7 +60,7 @@ doi:10.1198/016214504000001907
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
@@ -82,56 +82,16 @@ __all__ = ["AnovaTable", "anova_table", "PooledEstimates", "pooled_estimates",
 ALTERNATIVES = ("two-sided", "greater", "less")
 
 
-# --- validated inputs ----------------------------------------------------------
+# --- the model every procedure reads ---------------------------------------------
 
-@dataclass(frozen=True)
-class _Summary:
-    """Per-group summaries of values shifted by ``shift`` (a data value)."""
+def _summary(layout: Layout):
+    """Return the layout's model fit (one-way, or with its blocks and covariates).
 
-    n: np.ndarray
-    mean_shifted: np.ndarray
-    var: np.ndarray
-    shift: float
-    ss_within: float
-    df_error: int
-
-    @property
-    def mse(self) -> float:
-        return self.ss_within / self.df_error
-
-
-def _summary(layout: Layout) -> _Summary:
-    if not isinstance(layout, Layout):
-        raise FamwiseInputError(
-            f"layout must be a famwise.Layout; got {type(layout).__name__} "
-            f"(build one with famwise.Layout.from_groups or famwise.intake)")
-    k = layout.k
-    if k < 2:
-        raise FamwiseInputError(f"comparisons need at least two groups; got {k}")
-    values = layout.values
-    if values.size == 0 or not np.all(np.isfinite(values)):
-        raise FamwiseInputError("layout values must be finite and not empty")
-    # Shift by the median (a data value or the midpoint of two): differences
-    # of nearby doubles are exact (Sterbenz), so the group means of the
-    # shifted values carry full relative precision.
-    shift = float(np.median(values))
-    st = group_stats(values - shift, layout.codes, k)
-    empty = np.flatnonzero(st.n == 0)
-    if empty.size:
-        raise FamwiseInputError(
-            f"group {layout.labels[empty[0]]!r} has no observations; drop it "
-            f"from the labels or supply its values")
-    df_error = int(st.n.sum() - k)
-    if df_error < 1:
-        raise FamwiseInputError(
-            f"no error degrees of freedom (N = {int(st.n.sum())}, k = {k}); "
-            f"at least one group needs two or more observations")
-    ss_within = float(np.sum(np.where(st.n > 1, (st.n - 1) * np.nan_to_num(st.var), 0.0)))
-    if not ss_within > 0.0:
-        raise FamwiseInputError(
-            "the within-group variance is zero (every group is constant); "
-            "pooled procedures need some spread within groups")
-    return _Summary(st.n, st.mean, st.var, shift, ss_within, df_error)
+    Every procedure here reads (estimates, covariance, df) from
+    :func:`famwise.model.fit_model` and does not care how they were fitted.
+    """
+    from ..model import fit_model
+    return fit_model(layout)
 
 
 # --- the pooled estimates common to every procedure ---------------------------
@@ -143,13 +103,14 @@ class PooledEstimates:
     Attributes
     ----------
     difference, std_error, statistic, p_unadjusted : ndarray, shape (m,)
-        ``w @ means``, ``sqrt(MSE * sum(w^2 / n))``, their ratio, and the
-        p-value of the pooled t test of each comparison alone for
+        ``w @ means`` (adjusted means under a blocked or covariate model),
+        ``sqrt(w' Cov(means) w)`` (``sqrt(MSE * sum(w^2 / n))`` one-way), their
+        ratio, and the p-value of the t test of each comparison alone for
         ``alternative``.
     df : int
-        Error degrees of freedom ``N - k``.
+        Residual degrees of freedom of the model (``N - k`` one-way).
     mse : float
-        Pooled within-group mean square.
+        Residual mean square (the pooled within-group mean square one-way).
     alternative : str
     """
 
@@ -160,6 +121,7 @@ class PooledEstimates:
     df: int
     mse: float
     alternative: str
+    fit: object = field(default=None, repr=False, compare=False)
 
 
 def pooled_estimates(layout: Layout, family: Family, *,
@@ -169,6 +131,8 @@ def pooled_estimates(layout: Layout, family: Family, *,
     Parameters
     ----------
     layout : Layout
+        With a ``design`` (blocks, covariates) the estimates are contrasts of
+        the model's adjusted means.
     family : Family
         Built on ``layout.labels``.
     alternative : {"two-sided", "greater", "less"}, default="two-sided"
@@ -185,21 +149,23 @@ def pooled_estimates(layout: Layout, family: Family, *,
     return _pooled(s, family, alternative)
 
 
-def _pooled(s: _Summary, family: Family, alternative: str) -> PooledEstimates:
-    inv_n = 1.0 / s.n
+def _pooled(fit, family: Family, alternative: str) -> PooledEstimates:
     if family.pairs is not None:
         a, b = family.pairs[:, 0], family.pairs[:, 1]
         sign = family.weights[np.arange(family.m), a]  # +1 (pairs are (pos, neg))
-        est = sign * (s.mean_shifted[a] - s.mean_shifted[b])
-        var_w = inv_n[a] + inv_n[b]
+        est = sign * (fit.mean_shifted[a] - fit.mean_shifted[b])
+        var_w = fit.pair_variance_factor(a, b)
     else:
         # weights sum to zero, so the shift cancels from w @ means
-        est = family.weights @ s.mean_shifted
-        var_w = (family.weights ** 2) @ inv_n
-    se = np.sqrt(s.mse * var_w)
+        est = family.weights @ fit.mean_shifted
+        if fit.is_oneway:
+            var_w = (family.weights ** 2) @ np.diag(fit.mean_cov_unscaled)
+        else:
+            var_w = fit.contrast_variance_factor(family.weights)
+    se = np.sqrt(fit.mse * var_w)
     t = est / se
-    p = _t_pvalue(t, s.df_error, alternative)
-    return PooledEstimates(est, se, t, p, s.df_error, s.mse, alternative)
+    p = _t_pvalue(t, fit.df, alternative)
+    return PooledEstimates(est, se, t, p, fit.df, fit.mse, alternative, fit)
 
 
 def _table(family, pe, p_adjusted, lower, upper, alpha, procedure, *,
@@ -213,6 +179,8 @@ def _table(family, pe, p_adjusted, lower, upper, alpha, procedure, *,
     table.attrs["error_rate"] = error_rate
     table.attrs["interval_note"] = interval_note
     table.attrs["mse"] = pe.mse
+    if pe.fit is not None and not pe.fit.is_oneway:
+        table.attrs["model"] = pe.fit.describe()
     table.attrs.update(attrs)
     return table
 
@@ -274,12 +242,16 @@ class AnovaTable:
 
 
 def anova_table(layout: Layout) -> AnovaTable:
-    """Return the one-way ANOVA table of ``layout``.
+    """Return the ANOVA table of ``layout``'s groups.
 
-    Sums of squares are computed from centred values: within groups as the
-    sum of squared deviations from each group mean, between groups as
+    One-way: sums of squares from centred values, within groups as the sum
+    of squared deviations from each group mean, between groups as
     ``sum n_i (mean_i - grand)^2`` on median-shifted means, so adding 1e12 to
-    every value leaves them unchanged.
+    every value leaves them unchanged.  With blocks or covariates (a
+    ``layout.design``): ``ss_between`` is the group sum of squares adjusted
+    for the blocks and covariates, ``ss_within`` the model's residual sum of
+    squares on its residual df, and the two need not add up to ``ss_total``
+    (the corrected total); the full table is ``fit_model(layout).anova()``.
 
     Parameters
     ----------
@@ -299,15 +271,20 @@ def anova_table(layout: Layout) -> AnovaTable:
     >>> round(anova_table(lay).f, 4)
     9.7238
     """
+    from ..model.anova import term_sums_of_squares
     s = _summary(layout)
-    n_total = float(s.n.sum())
-    grand = float(np.sum(s.n * s.mean_shifted) / n_total)
-    ss_between = float(np.sum(s.n * (s.mean_shifted - grand) ** 2))
-    df_b, df_w = layout.k - 1, s.df_error
+    ss_between = float([r for r in term_sums_of_squares(s) if r[1] == "group"][0][3])
+    ss_between = max(ss_between, 0.0)
+    ss_within = s.ss_residual if not s.is_oneway else s.mse * s.df
+    df_b, df_w = layout.k - 1, s.df
     ms_b, ms_w = ss_between / df_b, s.mse
     f = ms_b / ms_w
-    ss_total = ss_between + s.ss_within
-    return AnovaTable(ss_between, s.ss_within, ss_total, df_b, df_w, ms_b, ms_w,
+    if s.is_oneway:
+        ss_total = ss_between + ss_within
+    else:
+        centred = s.y_shifted - s.y_shifted.mean()
+        ss_total = float(centred @ centred)
+    return AnovaTable(ss_between, ss_within, ss_total, df_b, df_w, ms_b, ms_w,
                       f, float(_st.f.sf(f, df_b, df_w)), ss_between / ss_total)
 
 
@@ -721,9 +698,7 @@ def dunnett(layout: Layout, family: Family, *, alpha: float = 0.05,
     from ..distributions.simultaneous import dunnett_ppf, dunnett_sf
 
     s, alpha, pe = _setup(layout, family, alpha, alternative, ALTERNATIVES, "dunnett")
-    treat = family.pairs[:, 0]
-    n0 = float(s.n[family.reference])
-    lam = np.sqrt(s.n[treat] / (s.n[treat] + n0))
+    lam, deviation = _dunnett_lambdas(s, family)
     t = pe.statistic
     if pe.alternative == "two-sided":
         p_adj = dunnett_sf(np.abs(t), lam, pe.df, alternative="two-sided")
@@ -736,5 +711,52 @@ def dunnett(layout: Layout, family: Family, *, alpha: float = 0.05,
     return _table(family, pe, p_adj, lower, upper, alpha, "dunnett",
                   interval_note=f"simultaneous {_sided(pe.alternative)} (1 - alpha) "
                                 f"Dunnett intervals against {family.labels[family.reference]!r}, "
-                                f"exact critical value {crit:.6g}",
-                  critical_value=crit)
+                                f"{'exact' if deviation <= 1e-9 else 'approximate'} "
+                                f"critical value {crit:.6g}" + (
+                                    "" if deviation <= 1e-9 else
+                                    f" (the model's correlations replaced by the nearest "
+                                    f"product form, largest change {deviation:.2g}; "
+                                    f"'multivariate-t' is exact)"),
+                  critical_value=crit, correlation_deviation=deviation)
+
+
+def _dunnett_lambdas(fit, family: Family) -> tuple[np.ndarray, float]:
+    """Return Dunnett's ``lambda_i`` and how far the model departs from them.
+
+    One-way: ``lambda_i = sqrt(n_i / (n_i + n_0))`` (Dunnett 1955, section 2),
+    exact.  Under a blocked or covariate model the correlations of the
+    comparisons with the reference are those of the model's adjusted means;
+    they have the product form ``rho_ij = lambda_i lambda_j`` for complete
+    balanced blocks (then exact), and otherwise are replaced by the closest
+    product form, fitted by the principal-factor iteration of a one-factor
+    model (Hsu 1992), the largest change in a correlation returned.
+
+    Hsu, J. C. (1992). The factor analytic approach to simultaneous inference
+    in the general linear model. *J. Comput. Graph. Statist.* 1(2):151-168.
+    doi:10.1080/10618600.1992.10477011
+    """
+    treat = family.pairs[:, 0]
+    if fit.is_oneway:
+        n0 = float(fit.n[family.reference])
+        return np.sqrt(fit.n[treat] / (fit.n[treat] + n0)), 0.0
+    C = fit.contrast_variance_factor(family.weights)
+    cov = family.weights @ fit.mean_cov_unscaled @ family.weights.T
+    d = np.sqrt(C)
+    R = cov / np.outer(d, d)
+    m = R.shape[0]
+    off = ~np.eye(m, dtype=bool)
+    if m == 1:
+        return np.array([0.0]), 0.0
+    lam = np.sqrt(np.clip(R[off].reshape(m, m - 1).mean(axis=1), 0.0, 1.0))
+    for _ in range(500):
+        A = R.copy()
+        np.fill_diagonal(A, lam ** 2)
+        w, v = np.linalg.eigh(A)
+        new = np.sqrt(max(w[-1], 0.0)) * np.abs(v[:, -1])
+        new = np.clip(new, 0.0, 1.0 - 1e-12)
+        if np.max(np.abs(new - lam)) < 1e-14:
+            lam = new
+            break
+        lam = new
+    deviation = float(np.max(np.abs((R - np.outer(lam, lam))[off])))
+    return lam, deviation
