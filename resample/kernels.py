@@ -100,6 +100,25 @@ def _draw(state, inc, bound, tg):
 
 
 @njit(cache=True, nogil=True, inline="always")
+def _draw_upto(state, inc, bound):
+    """As :func:`_draw` for a bound that changes every call (a Fisher–Yates
+    pass): the threshold's modulo is computed only in the rare case it can
+    matter (low word below ``bound``)."""
+    old = state
+    state = old * _MULT + inc
+    prod = _pcg_out(old) * bound
+    low = prod & _M32
+    if low < bound:
+        thresh = (_TWO32 - bound) % bound
+        while low < thresh:
+            old = state
+            state = old * _MULT + inc
+            prod = _pcg_out(old) * bound
+            low = prod & _M32
+    return np.int64(prod >> _S32), state
+
+
+@njit(cache=True, nogil=True, inline="always")
 def _tally(ustat, thr, order, hits_marginal, hits_stepdown, stepdown):
     """Count u_j >= thr_j, then, if ``stepdown``, the successive maxima from
     the lowest-ranked comparison upwards; return the max of ``ustat``."""
@@ -122,6 +141,42 @@ def _tally(ustat, thr, order, hits_marginal, hits_stepdown, stepdown):
             if ustat[j] > run:
                 run = ustat[j]
     return run
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _chunk_outputs(m, size):
+    """A chunk's outputs and scratch: maxima, marginal and step-down hits, statistics."""
+    return (np.empty(size), np.zeros(m, dtype=np.int64), np.zeros(m, dtype=np.int64),
+            np.empty(m))
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _draw_thresholds(n):
+    """Lemire's rejection threshold (2^32 - n) mod n for drawing within each group."""
+    thresh = np.empty(n.size, dtype=np.uint64)
+    for g in range(n.size):
+        bound = np.uint64(n[g])
+        thresh[g] = (_TWO32 - bound) % bound
+    return thresh
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _moments(gs, gss, n, pooled, big_n, mean, vm):
+    """Group means and variances of the mean from sums and sums of squares
+    (the pooled variance instead when ``pooled``)."""
+    k = n.size
+    within = 0.0
+    for g in range(k):
+        mean[g] = gs[g] / n[g]
+        ssq = gss[g] - gs[g] * mean[g]
+        if ssq < 0.0:
+            ssq = 0.0
+        within += ssq
+        vm[g] = ssq / ((n[g] - 1) * n[g])
+    if pooled:
+        mse = within / (big_n - k)
+        for g in range(k):
+            vm[g] = mse / n[g]
 
 
 @njit(cache=True, nogil=True)
@@ -200,10 +255,7 @@ def permutation_chunk(x, seg_lo, seg_hi, seg_group, n, largest, tot_s, tot_ss,
     k = n.size
     m = row_ptr.size - 1
     big_n = x.size
-    maxima = np.empty(size)
-    hits_marginal = np.zeros(m, dtype=np.int64)
-    hits_stepdown = np.zeros(m, dtype=np.int64)
-    ustat = np.empty(m)
+    maxima, hits_marginal, hits_stepdown, ustat = _chunk_outputs(m, size)
     gs = np.empty(k)
     gss = np.empty(k)
     mean = np.empty(k)
@@ -218,19 +270,7 @@ def permutation_chunk(x, seg_lo, seg_hi, seg_group, n, largest, tot_s, tot_ss,
             acc2 = 0.0
             for i in range(seg_hi[s_] - 1, seg_lo[s_] - 1, -1):
                 # j uniform on 0..i (Lemire's multiply with rejection).
-                bound = np.uint64(i + 1)
-                old = state
-                state = old * _MULT + inc
-                prod = _pcg_out(old) * bound
-                low = prod & _M32
-                if low < bound:
-                    thresh = (_TWO32 - bound) % bound
-                    while low < thresh:
-                        old = state
-                        state = old * _MULT + inc
-                        prod = _pcg_out(old) * bound
-                        low = prod & _M32
-                j = np.int64(prod >> _S32)
+                j, state = _draw_upto(state, inc, np.uint64(i + 1))
                 v = buf[j]
                 buf[j] = buf[i]
                 buf[i] = v
@@ -242,18 +282,7 @@ def permutation_chunk(x, seg_lo, seg_hi, seg_group, n, largest, tot_s, tot_ss,
             rest_ss -= acc2
         gs[largest] = rest_s
         gss[largest] = rest_ss
-        within = 0.0
-        for g in range(k):
-            mean[g] = gs[g] / n[g]
-            ssq = gss[g] - gs[g] * mean[g]
-            if ssq < 0.0:
-                ssq = 0.0
-            within += ssq
-            vm[g] = ssq / ((n[g] - 1) * n[g])
-        if pooled:
-            mse = within / (big_n - k)
-            for g in range(k):
-                vm[g] = mse / n[g]
+        _moments(gs, gss, n, pooled, big_n, mean, vm)
         maxima[b] = _family_stats(mean, vm, row_ptr, col, w, w2, se2_floor, sign,
                                   two_sided, thr, order, ustat, hits_marginal,
                                   hits_stepdown, stepdown)
@@ -277,10 +306,7 @@ def permutation_labels_chunk(x, labels, n, pooled, row_ptr, col, w, w2, se2_floo
     k = n.size
     m = row_ptr.size - 1
     big_n = x.size
-    maxima = np.empty(size)
-    hits_marginal = np.zeros(m, dtype=np.int64)
-    hits_stepdown = np.zeros(m, dtype=np.int64)
-    ustat = np.empty(m)
+    maxima, hits_marginal, hits_stepdown, ustat = _chunk_outputs(m, size)
     gs = np.empty(k)
     gss = np.empty(k)
     mean = np.empty(k)
@@ -291,19 +317,7 @@ def permutation_labels_chunk(x, labels, n, pooled, row_ptr, col, w, w2, se2_floo
             gs[g] = 0.0
             gss[g] = 0.0
         for i in range(big_n - 1, 0, -1):
-            bound = np.uint64(i + 1)
-            old = state
-            state = old * _MULT + inc
-            prod = _pcg_out(old) * bound
-            low = prod & _M32
-            if low < bound:
-                thresh = (_TWO32 - bound) % bound
-                while low < thresh:
-                    old = state
-                    state = old * _MULT + inc
-                    prod = _pcg_out(old) * bound
-                    low = prod & _M32
-            j = np.int64(prod >> _S32)
+            j, state = _draw_upto(state, inc, np.uint64(i + 1))
             g = lab[j]
             lab[j] = lab[i]
             lab[i] = g
@@ -313,18 +327,7 @@ def permutation_labels_chunk(x, labels, n, pooled, row_ptr, col, w, w2, se2_floo
         g = lab[0]
         gs[g] += x[0]
         gss[g] += x[0] * x[0]
-        within = 0.0
-        for g in range(k):
-            mean[g] = gs[g] / n[g]
-            ssq = gss[g] - gs[g] * mean[g]
-            if ssq < 0.0:
-                ssq = 0.0
-            within += ssq
-            vm[g] = ssq / ((n[g] - 1) * n[g])
-        if pooled:
-            mse = within / (big_n - k)
-            for g in range(k):
-                vm[g] = mse / n[g]
+        _moments(gs, gss, n, pooled, big_n, mean, vm)
         maxima[b] = _family_stats(mean, vm, row_ptr, col, w, w2, se2_floor, sign,
                                   two_sided, thr, order, ustat, hits_marginal,
                                   hits_stepdown, stepdown)
@@ -346,19 +349,14 @@ def bootstrap_chunk(r, start, n, pooled, row_ptr, col, w, w2, se2_floor, sign,
     k = n.size
     m = row_ptr.size - 1
     big_n = r.size
-    maxima = np.empty(size)
-    hits_marginal = np.zeros(m, dtype=np.int64)
-    hits_stepdown = np.zeros(m, dtype=np.int64)
-    ustat = np.empty(m)
+    maxima, hits_marginal, hits_stepdown, ustat = _chunk_outputs(m, size)
     mean = np.empty(k)
     vm = np.empty(k)
-    thresh = np.empty(k, dtype=np.uint64)
-    for g in range(k):
-        bound = np.uint64(n[g])
-        thresh[g] = (_TWO32 - bound) % bound
+    thresh = _draw_thresholds(n)
     state, inc = _pcg_init(rng_state[0], rng_state[1])
+    gs = np.empty(k)
+    gss = np.empty(k)
     for b in range(size):
-        within = 0.0
         for g in range(k):
             bound = np.uint64(n[g])
             tg = thresh[g]
@@ -370,17 +368,9 @@ def bootstrap_chunk(r, start, n, pooled, row_ptr, col, w, w2, se2_floor, sign,
                 v = r[base + j]
                 acc += v
                 acc2 += v * v
-            mg = acc / n[g]
-            ssq = acc2 - acc * mg
-            if ssq < 0.0:
-                ssq = 0.0
-            mean[g] = mg
-            within += ssq
-            vm[g] = ssq / ((n[g] - 1) * n[g])
-        if pooled:
-            mse = within / (big_n - k)
-            for g in range(k):
-                vm[g] = mse / n[g]
+            gs[g] = acc
+            gss[g] = acc2
+        _moments(gs, gss, n, pooled, big_n, mean, vm)
         maxima[b] = _family_stats(mean, vm, row_ptr, col, w, w2, se2_floor, sign,
                                   two_sided, thr, order, ustat, hits_marginal,
                                   hits_stepdown, stepdown)
@@ -403,18 +393,12 @@ def bootstrap_hall_chunk(r, start, n, ssq_floor, a_max, row_ptr, col, w, w2, w3,
     k = n.size
     m = row_ptr.size - 1
     big_n = r.size
-    maxima = np.empty(size)
-    hits_marginal = np.zeros(m, dtype=np.int64)
-    hits_stepdown = np.zeros(m, dtype=np.int64)
-    ustat = np.empty(m)
+    maxima, hits_marginal, hits_stepdown, ustat = _chunk_outputs(m, size)
     mean = np.empty(k)
     vm = np.empty(k)
     c3 = np.empty(k)
     sd3 = np.empty(k)
-    thresh = np.empty(k, dtype=np.uint64)
-    for g in range(k):
-        bound = np.uint64(n[g])
-        thresh[g] = (_TWO32 - bound) % bound
+    thresh = _draw_thresholds(n)
     state, inc = _pcg_init(rng_state[0], rng_state[1])
     for b in range(size):
         gamma = 0.0
@@ -469,17 +453,11 @@ def bootstrap_trimmed_chunk(r, start, n, cut, row_ptr, col, w, w2, se2_floor,
     """
     k = n.size
     m = row_ptr.size - 1
-    maxima = np.empty(size)
-    hits_marginal = np.zeros(m, dtype=np.int64)
-    hits_stepdown = np.zeros(m, dtype=np.int64)
-    ustat = np.empty(m)
+    maxima, hits_marginal, hits_stepdown, ustat = _chunk_outputs(m, size)
     mean = np.empty(k)
     vm = np.empty(k)
     counts = np.zeros(r.size, dtype=np.int64)
-    thresh = np.empty(k, dtype=np.uint64)
-    for g in range(k):
-        bound = np.uint64(n[g])
-        thresh[g] = (_TWO32 - bound) % bound
+    thresh = _draw_thresholds(n)
     state, inc = _pcg_init(rng_state[0], rng_state[1])
     for b in range(size):
         for g in range(k):
