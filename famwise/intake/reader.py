@@ -37,6 +37,7 @@ import pandas as pd
 
 from ..core.errors import FamwiseInputError, did_you_mean, LabelSpellingWarning
 from ..core.layout import Layout
+from .cells import MISSING_LABELS, blank_mask, is_blank, label_codes, parse_values
 from .ledger import Dropped, Ledger
 
 __all__ = ["Intake", "read", "file_sha256", "load_table", "parse_values", "find_column", "RawTable", "TEXT_SUFFIXES", "EXCEL_SUFFIXES", "PARQUET_SUFFIXES"]
@@ -44,11 +45,6 @@ __all__ = ["Intake", "read", "file_sha256", "load_table", "parse_values", "find_
 TEXT_SUFFIXES = (".csv", ".tsv", ".txt", ".tab", ".dat")
 EXCEL_SUFFIXES = (".xlsx", ".xlsm")
 PARQUET_SUFFIXES = (".parquet", ".pq")
-
-_NA_TEXT = {"", "na", "n/a", "nan", "null", "none", "-", ".", "#n/a", "missing", "?"}
-_NOT_DETECTED = re.compile(
-    r"^(n\.?\s?d\.?|not\s+detected|bdl|<\s*(dl|lod|loq|mdl|rl))$", re.IGNORECASE)
-_CENSORED = re.compile(r"^[<>≤≥]=?\s*[-+]?[\d.,]+(e[-+]?\d+)?\s*\S*$", re.IGNORECASE)
 
 
 @dataclass(frozen=True)
@@ -167,12 +163,8 @@ def _read_text(path: str, delimiter, decimal, encoding) -> tuple[pd.DataFrame, l
         raise FamwiseInputError(f"{path!r} is empty")
     # Leading blank lines confuse the parser's column count: skip them and
     # count them, so row numbers stay those of the file.
-    lines = text.splitlines(keepends=True)
-    skipped = 0
-    while skipped < len(lines) and not lines[skipped].strip():
-        skipped += 1
-    text = "".join(lines[skipped:])
-    sample = [ln for ln in text.splitlines()[:50] if ln.strip()]
+    text, skipped = _skip_blank_lines(text)
+    sample = [ln for ln in _head_lines(text, 50) if ln.strip()]
     detected = delimiter is None
     if detected:
         delimiter = "\t" if path.lower().endswith((".tsv", ".tab")) else _sniff(sample, decimal)
@@ -201,6 +193,27 @@ def _read_text(path: str, delimiter, decimal, encoding) -> tuple[pd.DataFrame, l
     if detected:
         _check_mixed_delimiters(sample, delimiter, path)
     return frame, notes, skipped
+
+
+def _skip_blank_lines(text: str) -> tuple[str, int]:
+    """Drop the blank lines before the first line holding anything; count them."""
+    lead = text[:len(text) - len(text.lstrip())]
+    pieces = lead.splitlines(keepends=True)
+    # Pieces that end in a line break are whole blank lines; a last piece
+    # without one is the indentation of the first filled line.
+    whole = [p for p in pieces if p != p.rstrip("\r\n\x0b\x0c\x1c\x1d\x1e\x85\u2028\u2029")]
+    cut = sum(len(p) for p in whole)
+    return text[cut:], len(whole)
+
+
+def _head_lines(text: str, n: int) -> list[str]:
+    """The first ``n`` lines of ``text`` (as ``str.splitlines`` cuts them)."""
+    size = 1 << 16
+    while True:
+        lines = text[:size].splitlines()
+        if len(lines) > n or size >= len(text):
+            return lines[:n]
+        size *= 4
 
 
 def _check_mixed_delimiters(sample: list[str], delimiter: str, path: str) -> None:
@@ -261,7 +274,7 @@ def _read_excel(path: str, sheet) -> tuple[pd.DataFrame, list[str]]:
         raise FamwiseInputError(
             f"{path!r} has no sheet {sheet!r} (sheets: {', '.join(map(repr, names))}){hint}")
     frame = pd.read_excel(path, sheet_name=sheet, header=None, dtype=object)
-    if frame.size == 0 or frame.apply(lambda col: col.map(_is_blank)).all(axis=None):
+    if frame.size == 0 or _blank_rows(frame).all():
         raise FamwiseInputError(f"sheet {sheet!r} of {path!r} is empty")
     return frame, [f"sheet: {sheet!r}"]
 
@@ -310,12 +323,12 @@ def load_table(source, *, sheet, delimiter, decimal, encoding) -> RawTable:
             f"{path!r}: unsupported file type {suffix!r} (expected one of "
             f"{', '.join(TEXT_SUFFIXES + EXCEL_SUFFIXES + PARQUET_SUFFIXES)})")
     # The header is the first row holding anything; rows before it are blank.
-    blank = frame.apply(lambda col: col.map(_is_blank)).all(axis=1).to_numpy()
+    blank = _blank_rows(frame)
     filled = np.flatnonzero(~blank)
     if filled.size == 0:
         raise FamwiseInputError(f"{path!r} is empty")
     h = int(filled[0])
-    header = ["" if _is_blank(x) else str(x).strip() for x in frame.iloc[h]]
+    header = ["" if is_blank(x) else str(x).strip() for x in frame.iloc[h]]
     body = frame.iloc[h + 1:].reset_index(drop=True)
     if body.shape[0] == 0:
         raise FamwiseInputError(f"{path!r} has a header row but no data rows")
@@ -325,67 +338,12 @@ def load_table(source, *, sheet, delimiter, decimal, encoding) -> RawTable:
     return RawTable(header, body, np.arange(first, first + len(body)), path, tuple(notes))
 
 
-def _is_blank(x) -> bool:
-    if x is None:
-        return True
-    if isinstance(x, float) and np.isnan(x):
-        return True
-    return isinstance(x, str) and x.strip() == ""
-
-
-# --- parsing values ----------------------------------------------------------
-
-def parse_values(cells: pd.Series, decimal: str) -> tuple[np.ndarray, np.ndarray, list]:
-    """Return (values, reason codes, raw texts); reason '' means usable."""
-    n = len(cells)
-    raw = cells.to_numpy(dtype=object)
-    values = np.full(n, np.nan)
-    reasons = np.full(n, "", dtype=object)
-    texts = [""] * n
-    if pd.api.types.is_numeric_dtype(cells.dtype) and not pd.api.types.is_bool_dtype(cells.dtype):
-        values = cells.to_numpy(dtype=np.float64, na_value=np.nan)
-        reasons[np.isnan(values)] = "missing-response"
-        reasons[np.isinf(values)] = "infinite"
-        texts = ["" if np.isnan(v) else repr(float(v)) for v in values]
-        return values, reasons, texts
-    strings = []
-    for i, x in enumerate(raw):
-        if isinstance(x, (bool, np.bool_)):
-            strings.append(str(x))
-        elif isinstance(x, (int, float, np.integer, np.floating)):
-            if np.isnan(x):
-                strings.append("")
-            else:
-                values[i] = float(x)
-                strings.append(None)   # already numeric
-                continue
-        elif x is None or x is pd.NA or x is pd.NaT:
-            strings.append("")
-        else:
-            strings.append(str(x).strip())
-    for i, s in enumerate(strings):
-        if s is None:
-            texts[i] = repr(values[i])
-            continue
-        texts[i] = s
-        if s.lower() in _NA_TEXT:
-            reasons[i] = "missing-response"
-            continue
-        t = s.replace(",", ".") if decimal == "," else s
-        try:
-            values[i] = float(t.replace("\u2212", "-"))
-        except ValueError:
-            if _NOT_DETECTED.match(s):
-                reasons[i] = "not-detected"
-            elif _CENSORED.match(s):
-                reasons[i] = "below-limit"
-            else:
-                reasons[i] = "text"
-    bad_inf = (reasons == "") & np.isinf(values)
-    reasons[bad_inf] = "infinite"
-    bad_nan = (reasons == "") & np.isnan(values)
-    reasons[bad_nan] = "missing-response"
-    return values, reasons, texts
+def _blank_rows(frame: pd.DataFrame) -> np.ndarray:
+    """Whether each row of a frame is blank in every column."""
+    blank = np.ones(len(frame), dtype=bool)
+    for j in frame.columns:
+        blank &= blank_mask(frame[j])
+    return blank
 
 
 _DECIMAL_COMMA = re.compile(r"^[-+]?\d+,\d+$")
@@ -417,18 +375,6 @@ def _number_hint(texts, decimal: str) -> str:
 
 #: Longest group label accepted; longer ones are nearly always a quoting error.
 MAX_LABEL = 500
-
-
-def _labels(cells: pd.Series) -> np.ndarray:
-    out = np.empty(len(cells), dtype=object)
-    for i, x in enumerate(cells.to_numpy(dtype=object)):
-        if _is_blank(x) or x is pd.NA:
-            out[i] = ""
-        elif isinstance(x, float) and x.is_integer():
-            out[i] = str(int(x))          # Excel reads label 3 as 3.0
-        else:
-            out[i] = str(x).strip()
-    return out
 
 
 def find_column(header: list[str], name, source: str, role: str) -> int:
@@ -517,39 +463,43 @@ def read(source, response: str | None = None, group: str | None = None, *,
     excluded = _excluded_rows(exclude_rows, raw)
     notes = list(raw.notes)
     if wide:
-        values, labels, rows, dropped, n_read = _wide(raw, columns, decimal, excluded)
+        values, codes, names, rows, dropped, n_read = _wide(raw, columns, decimal, excluded)
         unit = "cell"
         response_name, group_name = "value", "column"
     else:
-        values, labels, rows, dropped, n_read, response_name, group_name = \
+        values, codes, names, rows, dropped, n_read, response_name, group_name = \
             _long(raw, response, group, decimal, excluded)
         unit = "row"
-    _check_labels(labels, rows, src, unit)
-    # Spelling variants among the labels that are used.
-    counts = Counter(labels)
-    by_key: dict[str, list[str]] = {}
-    for lab in counts:
-        by_key.setdefault(_spelling_key(lab), []).append(lab)
-    mapping = {}
+    # From here on, labels are handled once per distinct label (``names``),
+    # each value carrying the code of its label.
+    counts = np.bincount(codes, minlength=len(names))
+    first = np.full(len(names), codes.size, dtype=np.int64)
+    np.minimum.at(first, codes, np.arange(codes.size))
+    used = [j for j in np.argsort(first, kind="stable").tolist() if counts[j] > 0]
+    _check_labels(names, used, first, rows, src, unit)
+    # Spelling variants among the labels that are used, in order of first use.
+    by_key: dict[str, list[int]] = {}
+    for j in used:
+        by_key.setdefault(_spelling_key(names[j]), []).append(j)
+    merged = list(names)
     for spellings in by_key.values():
         if len(spellings) < 2:
             continue
-        spellings.sort(key=lambda s: -counts[s])     # stable: ties keep first seen
-        listed = ", ".join(f"{s!r} ({_count(counts[s], unit)})" for s in spellings)
+        spellings.sort(key=lambda j: -counts[j])     # stable: ties keep first seen
+        listed = ", ".join(f"{names[j]!r} ({_count(int(counts[j]), unit)})"
+                           for j in spellings)
         if merge_spellings:
-            for s in spellings[1:]:
-                mapping[s] = spellings[0]
-            notes.append(f"merged spellings {listed} into {spellings[0]!r}")
+            for j in spellings[1:]:
+                merged[j] = names[spellings[0]]
+            notes.append(f"merged spellings {listed} into {names[spellings[0]]!r}")
         else:
             warnings.warn(LabelSpellingWarning(
                 f"group labels {listed} in {src!r} differ only by case or spacing; "
                 f"they are kept apart (pass merge_spellings=True, or --merge-spellings, "
                 f"to merge them)"), stacklevel=2)
             notes.append(f"labels {listed} differ only by case or spacing; kept apart")
-    if mapping:
-        labels = [mapping.get(lab, lab) for lab in labels]
     # Group order.
-    first_seen = list(dict.fromkeys(labels))
+    first_seen = list(dict.fromkeys(merged[j] for j in used))
     if order is not None:
         order = [str(o).strip() for o in order]
         missing = [g for g in first_seen if g not in order]
@@ -567,11 +517,12 @@ def read(source, response: str | None = None, group: str | None = None, *,
           and isinstance(source[group_name].dtype, pd.CategoricalDtype)
           and source[group_name].cat.ordered):
         label_order = [str(c).strip() for c in source[group_name].cat.categories
-                       if str(c).strip() in counts or str(c).strip() in mapping.values()]
+                       if str(c).strip() in first_seen]
     else:
         label_order = first_seen
     index = {lab: i for i, lab in enumerate(label_order)}
-    codes = np.array([index[lab] for lab in labels], dtype=np.int64)
+    to_group = np.array([index.get(lab, -1) for lab in merged], dtype=np.int64)
+    codes = to_group[codes] if codes.size else codes
     values = np.asarray(values, dtype=np.float64)
     ledger = Ledger(src, unit, n_read, int(values.size), tuple(dropped), tuple(notes))
     layout = Layout(values=values, codes=codes, labels=tuple(label_order),
@@ -591,28 +542,39 @@ def _long(raw: RawTable, response, group, decimal, excluded):
             f"response and group are the same column {raw.header[r]!r}")
     rname, gname = raw.header[r], raw.header[g]
     values, reasons, texts = parse_values(raw.body[r], decimal)
-    labels = _labels(raw.body[g])
-    blank_row = raw.body.apply(lambda col: col.map(_is_blank)).all(axis=1).to_numpy()
-    if not np.any(reasons == ""):
+    codes, names = label_codes(raw.body[g])
+    usable = reasons == ""
+    if not usable.any():
         shown = ", ".join(repr(t) for t in dict.fromkeys(x for x in texts if x)) or "only empty cells"
         raise FamwiseInputError(
             f"response column {rname!r} in {src!r} has no numeric values "
             f"(it holds {shown[:80]}){_number_hint(texts, decimal)}")
-    dropped, keep = [], np.zeros(len(values), dtype=bool)
-    for i in range(len(values)):
-        if raw.rows[i] in excluded:
+    no_group = np.array([lab.lower() in MISSING_LABELS for lab in names], dtype=bool)[codes]
+    excl = (np.isin(raw.rows, np.fromiter(excluded, dtype=np.int64, count=len(excluded)))
+            if excluded else np.zeros(len(values), dtype=bool))
+    # A blank row is blank in every column; look only where the response and
+    # the label are blank.
+    blank_row = np.zeros(len(values), dtype=bool)
+    maybe = (np.flatnonzero(~usable & (codes == names.index(""))) if "" in names
+             else np.zeros(0, dtype=np.int64))
+    maybe = maybe[[reasons[i] == "missing-response" and texts[i] == ""
+                   for i in maybe.tolist()]] if maybe.size else maybe
+    if maybe.size:
+        blank_row[maybe] = _blank_rows(raw.body.iloc[maybe])
+    keep = usable & ~no_group & ~excl & ~blank_row
+    dropped = []
+    for i in np.flatnonzero(~keep).tolist():
+        label = names[codes[i]]
+        if excl[i]:
             reason, col, text = "excluded", rname, texts[i]
         elif blank_row[i]:
             reason, col, text = "blank-row", "", ""
         elif reasons[i]:
             reason, col, text = reasons[i], rname, texts[i]
-        elif labels[i] == "" or labels[i].lower() in ("nan", "na", "n/a", "null", "none"):
-            reason, col, text = "missing-group", gname, labels[i]
         else:
-            keep[i] = True
-            continue
-        dropped.append(Dropped(int(raw.rows[i]), col, text, reason, labels[i]))
-    return (values[keep], list(labels[keep]), raw.rows[keep], dropped,
+            reason, col, text = "missing-group", gname, label
+        dropped.append(Dropped(int(raw.rows[i]), col, text, reason, label))
+    return (values[keep], codes[keep], names, raw.rows[keep], dropped,
             len(values), rname, gname)
 
 
@@ -627,40 +589,45 @@ def _wide(raw: RawTable, columns, decimal, excluded):
                 f"name it or choose the group columns")
     else:
         use = [find_column(header, c, src, "group") for c in columns]
-    values, labels, rows, dropped = [], [], [], []
+    names = list(dict.fromkeys(header[j] for j in use))
+    excl = (np.isin(raw.rows, np.fromiter(excluded, dtype=np.int64, count=len(excluded)))
+            if excluded else np.zeros(len(raw.body), dtype=bool))
+    values, codes, rows, dropped = [], [], [], []
     for j in use:
         v, reasons, texts = parse_values(raw.body[j], decimal)
-        for i in range(len(v)):
-            if raw.rows[i] in excluded:
-                dropped.append(Dropped(int(raw.rows[i]), header[j], texts[i], "excluded",
-                                       header[j]))
+        keep = (reasons == "") & ~excl
+        values.append(v[keep])
+        codes.append(np.full(int(keep.sum()), names.index(header[j]), dtype=np.int64))
+        rows.append(raw.rows[keep])
+        for i in np.flatnonzero(~keep).tolist():
+            row = int(raw.rows[i])
+            if excl[i]:
+                dropped.append(Dropped(row, header[j], texts[i], "excluded", header[j]))
             elif reasons[i] == "missing-response" and texts[i] == "":
-                dropped.append(Dropped(int(raw.rows[i]), header[j], "", "empty-cell", header[j]))
-            elif reasons[i]:
-                dropped.append(Dropped(int(raw.rows[i]), header[j], texts[i], reasons[i],
-                                       header[j]))
+                dropped.append(Dropped(row, header[j], "", "empty-cell", header[j]))
             else:
-                values.append(v[i])
-                labels.append(header[j])
-                rows.append(raw.rows[i])
-    if not values:
+                dropped.append(Dropped(row, header[j], texts[i], reasons[i], header[j]))
+    if not use:
+        raise FamwiseInputError(f"name at least one group column of {src!r}")
+    values, codes, rows = np.concatenate(values), np.concatenate(codes), np.concatenate(rows)
+    if not values.size:
         texts = [d.value for d in dropped]
         raise FamwiseInputError(f"the group columns of {src!r} hold no numeric values"
                                 f"{_number_hint(texts, decimal)}")
     dropped.sort(key=lambda d: (d.row, use.index(header.index(d.column))))
-    return (np.array(values), labels, np.array(rows), dropped,
-            len(use) * len(raw.body))
+    return values, codes, names, rows, dropped, len(use) * len(raw.body)
 
 
-def _check_labels(labels, rows, src: str, unit: str) -> None:
+def _check_labels(names, used, first, rows, src: str, unit: str) -> None:
     """Refuse labels that are too long or hold a line break (a quoting error)."""
-    for lab, row in zip(labels, rows):
+    for j in used:                       # in order of first use
+        lab = names[j]
         if len(lab) > MAX_LABEL or "\n" in lab or "\r" in lab:
             what = (f"is {len(lab)} characters long" if len(lab) > MAX_LABEL
                     else "holds a line break")
             raise FamwiseInputError(
-                f"the group label in {unit} {int(row)} of {src!r} {what} (it starts "
-                f"{lab[:30]!r}); this usually means an unbalanced quote in the file")
+                f"the group label in {unit} {int(rows[first[j]])} of {src!r} {what} (it "
+                f"starts {lab[:30]!r}); this usually means an unbalanced quote in the file")
 
 
 def _excluded_rows(exclude_rows, raw: RawTable) -> set:
