@@ -35,7 +35,7 @@ from .dask_client import dask_session
 
 __all__ = ["BACKENDS", "ResamplingProblem", "ChunkResult", "ResamplingRun",
            "as_seed_sequence", "chunk_seed", "chunk_sizes", "default_chunk_size",
-           "run_resamples"]
+           "run_resamples", "run_tasks", "want_progress", "Progress"]
 
 BACKENDS = ("threads", "processes", "dask")
 
@@ -178,12 +178,13 @@ def _run_chunk(problem: ResamplingProblem, stepdown: bool, size: int,
 class _Progress:
     """A tqdm bar on stderr, or nothing."""
 
-    def __init__(self, total: int, enabled: bool):
+    def __init__(self, total: int, enabled: bool, unit: str = "resample",
+                 desc: str = "resampling"):
         self.bar = None
         if enabled:
             from tqdm.auto import tqdm
-            self.bar = tqdm(total=total, unit="resample", unit_scale=True,
-                            file=sys.stderr, leave=False, desc="resampling")
+            self.bar = tqdm(total=total, unit=unit, unit_scale=True,
+                            file=sys.stderr, leave=False, desc=desc)
 
     def update(self, n: int):
         if self.bar is not None:
@@ -194,7 +195,8 @@ class _Progress:
             self.bar.close()
 
 
-def _want_progress(progress, estimate: float) -> bool:
+def want_progress(progress, estimate: float) -> bool:
+    """Whether to show a bar: as asked, else on a terminal, outside CI, for long runs."""
     if progress is not None:
         return bool(progress)
     try:
@@ -204,15 +206,27 @@ def _want_progress(progress, estimate: float) -> bool:
     return tty and not os.environ.get("CI") and estimate > _PROGRESS_AFTER
 
 
-def _execute(problem, stepdown, tasks, n_jobs, backend, scheduler, on_chunk):
-    """Run ``tasks`` [(index, size, state)] and call ``on_chunk(i, result)``."""
+def run_tasks(fn: Callable, tasks, n_jobs=1, backend: str = "threads", scheduler=None,
+              on_result: Callable | None = None) -> None:
+    """Run ``fn(*args)`` for each ``(key, args)`` in ``tasks`` and call
+    ``on_result(key, result)`` in task order.
+
+    The one dispatcher of the resampling engine and of the simulations built
+    on it (:mod:`famwise.diagnostics.simulate`): inline when ``n_jobs`` is 1
+    with threads, else joblib with the backend as a hint (threads, loky
+    processes) or joblib's dask backend on the session of
+    :func:`famwise.resample.dask_client.dask_session`.  On an interrupt or
+    error the queued tasks are stopped and nothing partial is returned.
+    """
     import joblib
+    tasks = list(tasks)
     if backend == "threads" and joblib.effective_n_jobs(n_jobs) == 1:
-        for index, size, state in tasks:
-            on_chunk(index, _run_chunk(problem, stepdown, size, state))
+        for key, args in tasks:
+            result = fn(*args)
+            if on_result is not None:
+                on_result(key, result)
         return
-    calls = (joblib.delayed(_run_chunk)(problem, stepdown, size, state)
-             for _, size, state in tasks)
+    calls = (joblib.delayed(fn)(*args) for _, args in tasks)
     with ExitStack() as stack:
         if backend == "dask":
             session = stack.enter_context(dask_session(scheduler, n_jobs=n_jobs))
@@ -221,17 +235,29 @@ def _execute(problem, stepdown, tasks, n_jobs, backend, scheduler, on_chunk):
             stack.enter_context(joblib.parallel_config(prefer=backend))
         gen = joblib.Parallel(n_jobs=n_jobs, return_as="generator")(calls)
         try:
-            for (index, _, _), result in zip(tasks, gen):
-                on_chunk(index, result)
+            for (key, _), result in zip(tasks, gen):
+                if on_result is not None:
+                    on_result(key, result)
         finally:
-            # On KeyboardInterrupt (or any error) stop the queued chunks;
+            # On KeyboardInterrupt (or any error) stop the queued tasks;
             # nothing partial leaves this function.
             close = getattr(gen, "close", None)
             if close is not None:
                 with warnings.catch_warnings():
-                    # joblib reports chunks finished but not collected.
+                    # joblib reports tasks finished but not collected.
                     warnings.simplefilter("ignore", UserWarning)
                     close()
+
+
+_want_progress = want_progress     # the name the engine tests use
+Progress = _Progress
+
+
+def _execute(problem, stepdown, tasks, n_jobs, backend, scheduler, on_chunk):
+    """Run ``tasks`` [(index, size, state)] and call ``on_chunk(i, result)``."""
+    run_tasks(_run_chunk, [(index, (problem, stepdown, size, state))
+                           for index, size, state in tasks],
+              n_jobs, backend, scheduler, on_chunk)
 
 
 def run_resamples(problem: ResamplingProblem, *, resamples: int,
@@ -281,7 +307,7 @@ def run_resamples(problem: ResamplingProblem, *, resamples: int,
     import joblib
     workers = 1 if backend == "dask" else max(1, joblib.effective_n_jobs(n_jobs))
     estimate = _SECONDS_PER_ELEMENT * problem.n_elements * to_run / min(workers, max(len(tasks), 1))
-    bar = _Progress(to_run, _want_progress(progress, estimate))
+    bar = _Progress(to_run, want_progress(progress, estimate))
     start = time.perf_counter()
 
     def collect(index, result):
