@@ -113,7 +113,7 @@ def _candidates(family: Family) -> list[str]:
 def null_design(layout: Layout, shape: str = "normal"):
     """The design of the complete null at ``layout``'s sizes and SDs, with
     normal errors or (``shape="observed"``) its standardised residuals."""
-    from .simulate import Design
+    from .simulate import Scenario
     st = layout.stats
     if shape == "normal":
         errors = None
@@ -122,7 +122,7 @@ def null_design(layout: Layout, shape: str = "normal"):
         errors = standardised_residuals(layout)
     else:
         raise FamwiseInputError(f"shape must be 'normal' or 'observed'; got {shape!r}")
-    return Design(tuple(int(v) for v in st.n), (0.0,) * layout.k,
+    return Scenario(tuple(int(v) for v in st.n), (0.0,) * layout.k,
                   tuple(float(v) for v in st.sd), errors)
 
 

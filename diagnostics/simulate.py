@@ -41,7 +41,7 @@ from .stacked import Blocks, stacked_checks
 from .stacked_procedures import (Stack, closed_form_rejects, is_resampling, single_step_name,
                                  warp_rejects, warp_statistics)
 
-__all__ = ["Design", "Simulation", "route_table", "design_layout", "draw", "simulate",
+__all__ = ["Scenario", "Simulation", "route_table", "design_layout", "draw", "simulate",
            "CHUNK"]
 
 #: Replicates per chunk (fixed, so results never depend on n_jobs).
@@ -49,8 +49,8 @@ CHUNK = 500
 
 
 @dataclass(frozen=True)
-class Design:
-    """What one simulated data set looks like.
+class Scenario:
+    """What one simulated data set looks like (a scenario of the design).
 
     ``n``: group sizes; ``mean``, ``sd``: the true group means and SDs;
     ``errors``: ``None`` for normal errors, or a pool of standardised
@@ -67,7 +67,7 @@ class Design:
         return Blocks.of(self.n)
 
 
-def draw(design: Design, replicates: int, rng) -> Stack:
+def draw(design: Scenario, replicates: int, rng) -> Stack:
     """Draw ``replicates`` data sets of ``design`` as a :class:`Stack`."""
     blocks = design.blocks
     size = (int(replicates), blocks.total)
@@ -145,7 +145,7 @@ class Simulation:
 
 @dataclass(frozen=True)
 class _Task:
-    design: Design
+    design: Scenario
     family: Family
     closed: tuple
     warp: tuple
@@ -166,7 +166,7 @@ def _chunk(task: _Task, size: int, seed: np.random.SeedSequence) -> dict:
     return out
 
 
-def simulate(design: Design, family: Family, procedures, *, replicates: int,
+def simulate(design: Scenario, family: Family, procedures, *, replicates: int,
              seed: np.random.SeedSequence, alpha: float = 0.05, pipeline: bool = False,
              policy: Policy | None = None, table: dict | None = None, n_jobs=1,
              backend: str = "threads", scheduler=None, on_chunk=None) -> Simulation:
@@ -174,7 +174,7 @@ def simulate(design: Design, family: Family, procedures, *, replicates: int,
 
     Parameters
     ----------
-    design : Design
+    design : Scenario
     family : Family
     procedures : list of str
         Procedure identifiers (``"auto"`` may be among them: the pipeline).

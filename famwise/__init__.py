@@ -18,11 +18,12 @@ _LAZY = {
     "inspect": ("famwise.api", "inspect"),
     "calibrate": ("famwise.api", "calibrate"),
     "batch": ("famwise.batching.run", "batch"),
+    "plan": ("famwise.planning.plan", "plan"),
     "Layout": ("famwise.core.layout", "Layout"),
     "Comparison": ("famwise.comparison", "Comparison"),
 }
 
-__all__ = ["__version__", "compare", "inspect", "calibrate", "batch", "FamwiseError",
+__all__ = ["__version__", "compare", "inspect", "calibrate", "batch", "plan", "FamwiseError",
            "FamwiseInputError", "FamwiseWarning", "Layout", "Comparison"]
 
 

@@ -30,7 +30,7 @@ from famwise.core.layout import Layout
 from famwise.diagnostics import Policy, run_checks
 from famwise.diagnostics.route import choose
 from famwise.diagnostics.shape import anderson_darling as ad_one
-from famwise.diagnostics.simulate import Design, draw, route_table, simulate
+from famwise.diagnostics.simulate import Scenario, draw, route_table, simulate
 from famwise.diagnostics.stacked import (Blocks, anderson_darling, bartlett, brown_forsythe,
                                          fligner, moments, shapiro_wilk, stacked_checks)
 from famwise.diagnostics.stacked_procedures import closed_form_rejects
@@ -129,7 +129,7 @@ def test_stacked_procedures_equal_run_procedure(family_kind):
     n, sd = [6, 8, 7, 9], [1, 1.8, 0.7, 1.2]
     labels = [str(i) for i in range(4)]
     fam = all_pairs(labels) if family_kind == "all-pairs" else vs_reference(labels, "0")
-    design = Design(tuple(n), (0.0, 1.2, -0.4, 0.9), tuple(sd))
+    design = Scenario(tuple(n), (0.0, 1.2, -0.4, 0.9), tuple(sd))
     stack = draw(design, 40, np.random.default_rng(6))
     names = ["lsd", "bonferroni", "sidak", "holm", "bh", "scheffe", "welch", "welch-holm",
              "dunnett-t3", "yuen-holm"]
@@ -148,7 +148,7 @@ def test_stacked_procedures_equal_run_procedure(family_kind):
 
 def test_simulation_is_reproducible_across_jobs_and_backends():
     fam = all_pairs([str(i) for i in range(4)])
-    design = Design((5, 6, 7, 8), (0.0, 1.0, 0.0, 0.0), (1.0, 1.0, 2.0, 1.0))
+    design = Scenario((5, 6, 7, 8), (0.0, 1.0, 0.0, 0.0), (1.0, 1.0, 2.0, 1.0))
     procs = ["tukey-kramer", "games-howell", "bootstrap-maxt", "auto"]
     runs = [simulate(design, fam, procs, replicates=1200, seed=np.random.SeedSequence(9),
                      n_jobs=j, backend=b)
@@ -166,7 +166,7 @@ def test_warp_speed_agrees_with_the_full_nested_computation():
     computation (150 replicates, each with its own 499 resamples)."""
     labels = ["0", "1", "2"]
     fam = all_pairs(labels)
-    design = Design((8, 8, 8), (0.0, 1.1, 0.0), (1.0, 1.0, 1.5))
+    design = Scenario((8, 8, 8), (0.0, 1.1, 0.0), (1.0, 1.0, 1.5))
     warp = simulate(design, fam, ["bootstrap-maxt", "permutation-stepdown"], replicates=4000,
                     seed=np.random.SeedSequence(10))
     rng = np.random.default_rng(11)

@@ -31,7 +31,7 @@ import numpy as np
 from scipy import stats
 
 __all__ = ["residual_quantile_svg", "spread_level_svg", "interval_svg", "svg_text",
-           "plotting_positions"]
+           "plotting_positions", "power_curve_svg"]
 
 #: Colours: dark ink, a muted grey for the rest, one accent, a pale band.
 INK, MUTED, ACCENT, BAND = "#1b1b1b", "#8a8a8a", "#b3432b", "#e4ecf4"
@@ -257,6 +257,49 @@ def interval_svg(names, difference, lower, upper, reject, *, margin=None,
     return svg_text(draw, "intervals", (7.2, height),
                     "Differences with their intervals, the zero line"
                     + (" and the margin band" if margin is not None else ""))
+
+
+_LINE_STYLES = ("-", "--", "-.", ":", (0, (5, 1, 1, 1)), (0, (3, 1)))
+_MARKERS = ("o", "s", "^", "D", "v", "P", "X")
+
+
+def power_curve_svg(n, series: dict, target: float, *, what: str = "power",
+                    highlight: str | None = None) -> str:
+    """Return the power-curve plot: power against n per group, one line per
+    procedure (the highlighted one in the accent colour), and the target line.
+
+    ``series`` maps a procedure's name to its powers at ``n`` (NaN where not
+    evaluated).  Lines differ by dash pattern and marker as well as shade, so
+    the plot reads in grey print.
+    """
+    x = np.asarray(n, dtype=np.float64)
+
+    def draw(fig):
+        ax = fig.add_subplot()
+        ax.axhline(target, color=INK, lw=0.9, ls=(0, (2, 2)), zorder=1, gid="target-line",
+                   label=f"target {_fmt(target)}")
+        for i, (name, values) in enumerate(series.items()):
+            y = np.asarray(values, dtype=np.float64)
+            ok = np.isfinite(y)
+            accent = name == highlight
+            ax.plot(x[ok], y[ok], ls=_LINE_STYLES[i % len(_LINE_STYLES)],
+                    marker=_MARKERS[i % len(_MARKERS)], ms=4.5,
+                    color=ACCENT if accent else (INK if i % 2 == 0 else MUTED),
+                    lw=2.0 if accent else 1.3, zorder=3 if accent else 2,
+                    label=_clip(name, 30), gid=f"curve-{i}")
+        ax.set_ylim(-0.02, 1.02)
+        if x.size:
+            span = float(x.max() - x.min()) or 1.0
+            ax.set_xlim(x.min() - 0.04 * span, x.max() + 0.04 * span)
+        ax.set_xlabel("observations per group")
+        ax.set_ylabel(what)
+        ax.grid(True, color="#e6e6e6", lw=0.6)
+        ax.set_axisbelow(True)
+        fig.legend(loc="outside upper left", ncol=3, fontsize=8)
+
+    return svg_text(draw, "power", (7.2, 4.2),
+                    f"Estimated {what} against observations per group, one line per "
+                    f"procedure, with the target line")
 
 
 def _fmt(x: float) -> str:

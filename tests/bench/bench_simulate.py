@@ -27,7 +27,7 @@ from famwise.core.families import all_pairs
 from famwise.core.layout import Layout
 from famwise.diagnostics import Policy, run_checks
 from famwise.diagnostics.route import choose
-from famwise.diagnostics.simulate import Design, simulate
+from famwise.diagnostics.simulate import Scenario, simulate
 from famwise.distributions import simultaneous as dist
 
 SIZES = (8, 8, 8, 8, 9, 9)          # N = 50, k = 6
@@ -65,7 +65,7 @@ def old_path(replicates: int, seed: int) -> float:
 
 def new_path(replicates: int, seed: int) -> float:
     fam = all_pairs([f"g{i}" for i in range(len(SIZES))])
-    design = Design(SIZES, (0.0,) * len(SIZES), (1.0,) * len(SIZES))
+    design = Scenario(SIZES, (0.0,) * len(SIZES), (1.0,) * len(SIZES))
     sim = simulate(design, fam, ["tukey-kramer", "auto"], replicates=replicates,
                    seed=np.random.SeedSequence(seed))
     rows = sim.routes == "tukey-kramer"
