@@ -27,6 +27,8 @@ examples:
   famwise inspect trial.csv --response nitrate_mg_kg --group mix
   famwise inspect plots.xlsx --sheet 2025 --response yield --group variety
   famwise inspect wide.csv --wide --columns "Rye,Fallow,Clover"
+  famwise plan trial.csv -r nitrate_mg_kg -g mix --margin 5 --out plan/
+  famwise plan --sd 4,4,6 --margin 5 --n 6,8,10,12
   famwise demo --out out/demo
 """
 
@@ -218,6 +220,62 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--quiet", "-q", action="store_true", help="print nothing but warnings")
     p.set_defaults(run=_run_batch)
 
+    p = sub.add_parser("plan", help="power and group sizes for the next trial, by simulation",
+                       description="Estimate, by simulating data like a pilot's (or with "
+                                   "the SDs you state), the power of each procedure and of "
+                                   "the automatic pipeline to find a difference of at least "
+                                   "the margin, their familywise error at the same design, "
+                                   "and the smallest group size that reaches a target power.")
+    p.add_argument("file", nargs="?", help="a pilot: CSV/TSV/TXT, Excel (.xlsx) or Parquet")
+    p.add_argument("--response", "-r", metavar="COL", help="column of measured values")
+    p.add_argument("--group", "-g", metavar="COL", help="column of group labels")
+    p.add_argument("--wide", action="store_true", help="wide layout: one column per group")
+    p.add_argument("--columns", metavar="A,B,...", help="wide layout: the group columns")
+    p.add_argument("--order", metavar="A,B,...", help="group order (the first two carry the "
+                                                      "margin under one-pair)")
+    _add_file_options(p)
+    p.add_argument("--exclude-rows", metavar="N,M,...", help="set aside these pilot rows")
+    p.add_argument("--margin", type=float, required=True, metavar="D",
+                   help="smallest difference that matters, in the response's unit")
+    p.add_argument("--sd", metavar="S1,S2,...",
+                   help="group SDs (without a pilot: one per group; with one: replaces its SDs)")
+    p.add_argument("--n", metavar="N1,N2,...",
+                   help="group sizes to evaluate (default: search the smallest that reaches "
+                        "the target)")
+    p.add_argument("--target-power", type=float, default=0.8, metavar="P",
+                   help="power to reach (default 0.8)")
+    p.add_argument("--goal", choices=("any", "each", "all"), default="any",
+                   help="which power the target is for: at least one true difference "
+                        "(default), each on average, or all")
+    p.add_argument("--placement", choices=("one-pair", "one-vs-rest", "observed"),
+                   default="one-pair", help="where the margin sits (default one-pair)")
+    p.add_argument("--procedure", "-p", action="append", metavar="NAME",
+                   help="a procedure to evaluate (repeat; auto is the pipeline; default: the "
+                        "route's candidates and auto)")
+    p.add_argument("--replicates", type=int, default=2000, metavar="N",
+                   help="simulated data sets per size (default 2000)")
+    p.add_argument("--alpha", type=float, default=0.05, help="familywise level (default 0.05)")
+    p.add_argument("--shape", choices=("normal", "observed"),
+                   help="errors: normal, or resampled from the pilot's residuals (default "
+                        "with a pilot)")
+    p.add_argument("--allocation", choices=("equal", "pilot"), default="equal",
+                   help="equal groups, or the pilot's proportions")
+    p.add_argument("--max-n", type=int, default=500, metavar="N",
+                   help="largest size per group the search tries (default 500)")
+    p.add_argument("--seed", type=int, help="seed (default: drawn, recorded)")
+    p.add_argument("--jobs", "-j", type=int, default=1, metavar="N",
+                   help="parallel jobs (-1: all cores)")
+    p.add_argument("--backend", choices=("threads", "processes", "dask"), default="threads")
+    p.add_argument("--scheduler", metavar="ADDRESS", help="dask scheduler address")
+    p.add_argument("--policy", metavar="FILE", help="routing thresholds from a TOML file")
+    p.add_argument("--out", "-o", metavar="DIR",
+                   help="write power.csv, power.json, power.txt and power.html to DIR")
+    p.add_argument("--force", action="store_true", help="replace files already in DIR")
+    p.add_argument("--format", choices=("text", "json", "csv"), default="text",
+                   help="what to print: the summary, the plan record, or the table")
+    p.add_argument("--quiet", "-q", action="store_true", help="print nothing but warnings")
+    p.set_defaults(run=_run_plan)
+
     p = sub.add_parser("procedures", help="list the procedures and what each is for",
                        description="List the procedure identifiers, their route, the "
                                    "families they handle and when each fits.")
@@ -373,6 +431,59 @@ def _run_batch(args) -> int:
         print(f"famwise: internal error in task {r.response}: {r.reason} "
               f"(set FAMWISE_DEBUG=1 and run the task's compare command)", file=sys.stderr)
     return 1 if len(failed) else 0
+
+
+def _numbers(text, option, kind):
+    if text is None:
+        return None
+    out = []
+    for part in _split(text):
+        try:
+            out.append(kind(part))
+        except ValueError:
+            raise FamwiseInputError(
+                f"{option} must be a comma-separated list of "
+                f"{'whole numbers' if kind is int else 'numbers'}, e.g. "
+                f"{'6,8,10' if kind is int else '1,1,2'}; got {part!r} in {text!r}") from None
+    if not out:
+        raise FamwiseInputError(f"{option} is empty; give e.g. "
+                                f"{'6,8,10' if kind is int else '1,1,2'}")
+    return out
+
+
+def _run_plan(args) -> int:
+    from ..planning.plan import plan
+    if args.file is None and args.sd is None:
+        raise FamwiseInputError("famwise plan needs a pilot FILE (with -r and -g) or --sd "
+                                "S1,S2,... (one SD per group)")
+    if args.scheduler and args.backend != "dask":
+        raise FamwiseInputError("--scheduler needs --backend dask")
+    if args.out:
+        from ..report.output import prepare_folder
+        from ..report.plan_files import PLAN_FILES
+        prepare_folder(args.out, PLAN_FILES, force=args.force)   # fail before the work
+    read = _read_options(args) if args.file is not None else {}
+    result = plan(args.file, args.response, args.group, sd=_numbers(args.sd, "--sd", float),
+                  n=_numbers(args.n, "--n", int), margin=args.margin,
+                  placement=args.placement, target_power=args.target_power,
+                  procedures=args.procedure, replicates=args.replicates, seed=args.seed,
+                  n_jobs=args.jobs, backend=args.backend, scheduler=args.scheduler,
+                  alpha=args.alpha, shape=args.shape, goal=args.goal,
+                  allocation=args.allocation, max_n=args.max_n, policy=args.policy, **read)
+    if args.out:
+        result.save(args.out, force=args.force)
+    if args.quiet:
+        return 0
+    if args.format == "json":
+        print(result.to_json())
+    elif args.format == "csv":
+        from ..report.output import safe_csv_text
+        sys.stdout.write(safe_csv_text(result.table))
+    else:
+        print(result.summary())
+        if args.out:
+            print(f"\nwrote the power report and tables to {args.out}")
+    return 0
 
 
 def _run_procedures(args) -> int:

@@ -510,12 +510,14 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
                            for p in procs}
         else:
             recommended, last = _search(evaluate, procs, goal, target,
-                                        _start(margin, sds, alpha, k), int(max_n))
+                                        min(int(max_n), _start(margin, sds, alpha, k)),
+                                        int(max_n))
             if all(v is None for v in recommended.values()):
                 best = max(evaluate(last).values(), key=lambda r: r[f"power_{goal}"])
                 raise FamwiseInputError(
-                    f"target power {target:g} is not reached below the cap of {last} per "
-                    f"group: the largest power_{goal} there is {best[f'power_{goal}']:.3f} "
+                    f"target power {target:g} is not reached by {last} per group (the largest "
+                    f"size tried, max_n={int(max_n)}): the largest power_{goal} there is "
+                    f"{best[f'power_{goal}']:.3f} "
                     f"({best['procedure']}); plan for a larger margin or a lower target, or "
                     f"raise max_n")
             for p, v in recommended.items():
