@@ -51,6 +51,13 @@ def test_demo_command_writes_its_files(tmp_path, capsys):
             assert (folder / name).stat().st_size > 0
     groups = pd.read_csv(out / "groups.csv")
     assert list(groups["group"]) == list(MIXES)
+    # The next season's plan sits beside the reviewed comparison report.
+    for name in ("power.csv", "power.json", "power.txt", "power.html"):
+        assert (out / "after-review" / name).stat().st_size > 0
+    power = json.loads((out / "after-review" / "power.json").read_text())
+    assert power["schema"] == "famwise.plan/1" and power["settings"]["margin"] == 5.0
+    assert power["settings"]["pilot_n"] is not None and "auto" in power["recommended"]
+    assert "Planning the next season" in printed
     ledger = pd.read_csv(out / "after-review" / "ledger.csv")
     assert sorted(ledger.loc[ledger["reason"] == "excluded", "row"]) == [19, 37]
     decision = json.loads((out / "after-review" / "decision.json").read_text())

@@ -79,6 +79,12 @@ def covercrop_trial(seed: int = DEMO_SEED) -> pd.DataFrame:
     return frame
 
 
+#: The next season's plan: the smallest difference in residual nitrate that matters to the
+#: trial's agronomists (mg/kg), and the plot counts per mix it compares.
+PLAN_MARGIN = 5.0
+PLAN_SIZES = (4, 6, 8, 10, 12, 16, 20)
+PLAN_REPLICATES = 1000
+
 #: Rows the walk-through sets aside after checking the records: the plot beside
 #: the manure heap (row 19) and the value entered without its decimal point (row 37).
 REVIEWED_EXCLUSIONS = (19, 37)
@@ -88,19 +94,24 @@ def run_demo(folder: str = "out/demo", force: bool = False) -> tuple[str, str]:
     """Run famwise on the trial as recorded, then after the review of flagged rows.
 
     Writes the data and every result file to ``folder`` (the trial as
-    recorded) and to ``folder/after-review`` (rows 19 and 37 excluded), and
-    returns the text to print and the folder.
+    recorded) and to ``folder/after-review`` (rows 19 and 37 excluded), then
+    plans the next season from the reviewed trial (power to find a
+    ``PLAN_MARGIN`` mg/kg difference between bare fallow and cereal rye, for
+    ``PLAN_SIZES`` plots per mix) and writes the power report beside the
+    reviewed comparison report; returns the text to print and the folder.
     """
     import os
 
     from ..api import compare
     from ..report.output import prepare_folder, write_atomic
     from ..report.files import OUTPUT_FILES
+    from ..report.plan_files import PLAN_FILES
+    from ..planning.plan import plan
 
     data_name = "covercrop_nitrate.csv"
     review = os.path.join(folder, "after-review")
     prepare_folder(folder, OUTPUT_FILES + (data_name,), force=force)
-    prepare_folder(review, OUTPUT_FILES, force=force)
+    prepare_folder(review, OUTPUT_FILES + PLAN_FILES, force=force)
     path = os.path.join(folder, data_name)
     write_atomic(path, covercrop_trial().to_csv(index=False, lineterminator="\n"))
     options = dict(merge_spellings=True, seed=DEMO_SEED, resamples=9999, calibrate=1000)
@@ -116,10 +127,21 @@ def run_demo(folder: str = "out/demo", force: bool = False) -> tuple[str, str]:
                              f"--group {DEMO_GROUP} --merge-spellings --seed {DEMO_SEED} "
                              f"--calibrate 1000 --exclude-rows {rows}")
     second.save(review, force=force)
+    sizes = ",".join(map(str, PLAN_SIZES))
+    season = plan(path, DEMO_RESPONSE, DEMO_GROUP, merge_spellings=True,
+                  exclude_rows=REVIEWED_EXCLUSIONS, margin=PLAN_MARGIN, n=list(PLAN_SIZES),
+                  replicates=PLAN_REPLICATES, seed=DEMO_SEED)
+    season.save(review, force=force)
     text = "\n".join([
         "=== The trial as recorded ===", first.summary(), "",
         f"=== After checking rows {rows} against the field and lab records ===",
         "Row 19 is the plot beside the manure heap and row 37 a value typed without its",
         f"decimal point; both are excluded (--exclude-rows {rows}) and the ledger says so.",
-        "", second.summary()])
+        "", second.summary(), "",
+        f"=== Planning the next season: a {PLAN_MARGIN:g} mg/kg difference, {sizes} plots "
+        f"per mix ===",
+        f"famwise plan {path} -r {DEMO_RESPONSE} -g {DEMO_GROUP} --merge-spellings "
+        f"--exclude-rows {rows} --margin {PLAN_MARGIN:g} --n {sizes} "
+        f"--replicates {PLAN_REPLICATES} --seed {DEMO_SEED}", "",
+        season.summary()])
     return text, folder
