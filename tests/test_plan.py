@@ -209,3 +209,48 @@ def test_cli_plan(tmp_path, capsys):
     assert "--sd must be a comma-separated list" in capsys.readouterr().err
     assert cli_main(["plan", "--margin", "1"]) == 2
     assert "pilot FILE" in capsys.readouterr().err
+
+
+def test_blocked_pilot_plans_at_the_residual_spread():
+    """A pilot with strong block effects: the plan's SDs come from the additive
+    model's residuals (fit_model), not from the block-inflated group SDs, and
+    pool to the model's residual mean square."""
+    from famwise.core.layout import Design, Layout
+    from famwise.model.fit import fit_model
+    rng = np.random.default_rng(42)
+    k, b = 4, 6
+    block = np.tile(np.arange(b), k)
+    group = np.repeat(np.arange(k), b)
+    y = 20 + 5.0 * rng.standard_normal(b)[block] + rng.standard_normal(k * b)
+    design = Design.from_arrays({"field": [f"F{i}" for i in block]})
+    blocked = Layout(y, group, ("A", "B", "C", "D"), design=design)
+    plain = Layout(y, group, ("A", "B", "C", "D"))
+    r = famwise.plan(blocked, margin=2.0, n=[6], replicates=300, seed=43,
+                     procedures=["tukey-kramer"])
+    flat = famwise.plan(plain, margin=2.0, n=[6], replicates=300, seed=43,
+                        procedures=["tukey-kramer"])
+    sd = np.array(r.settings["sd"])
+    assert np.all(sd < np.array(flat.settings["sd"]))
+    fit = fit_model(blocked)
+    assert np.sum(6 * sd ** 2) / 24 == pytest.approx(fit.mse, rel=1e-12)
+    assert r.settings["pilot_model"]["terms"] == ["field"]
+    assert any("additive model" in note for note in r.notes)
+    assert r.table["power_any"].iloc[0] > flat.table["power_any"].iloc[0]
+
+
+def test_identical_on_a_dask_cluster():
+    distributed = pytest.importorskip("dask.distributed")
+    import logging
+    cluster = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                       host="127.0.0.1", dashboard_address=None,
+                                       silence_logs=logging.ERROR)
+    client = distributed.Client(cluster, set_as_default=False)
+    try:
+        kw = dict(sd=[1, 2, 1.5], margin=2.0, n=[6], replicates=1200, seed=44,
+                  procedures=["dunnett-t3", "bootstrap-maxt", "auto"])
+        ref = famwise.plan(**kw).table
+        got = famwise.plan(**kw, n_jobs=2, backend="dask", scheduler=client).table
+        pd.testing.assert_frame_equal(got, ref, check_exact=True)
+    finally:
+        client.close()
+        cluster.close()

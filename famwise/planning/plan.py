@@ -241,6 +241,44 @@ def _sizes(n: int, weights) -> tuple:
     return tuple(max(2, int(round(n * w))) for w in weights)
 
 
+def _blocked_pilot(layout) -> dict | None:
+    """SDs and error shape of a pilot with blocks or covariates, from the model.
+
+    The block and covariate effects are removed by the additive model
+    (:func:`famwise.model.fit_model`); each group's SD is the root mean
+    square of its residuals, rescaled so the groups pool to the model's
+    residual mean square, and the errors to resample are the residuals over
+    their group's SD.  The plan then simulates comparisons at that residual
+    spread as a one-way design (df N - k; a complete block design has
+    (n - 1)(k - 1), so the plan is slightly optimistic when n is small).
+    """
+    design = getattr(layout, "design", None)
+    if design is None or design.is_empty:
+        return None
+    from ..model.fit import fit_model
+    fit = fit_model(layout)
+    res = fit.residuals
+    n = np.bincount(layout.codes, minlength=layout.k).astype(float)
+    ss = np.bincount(layout.codes, weights=res * res, minlength=layout.k)
+    raw = ss / n
+    scale = fit.mse / (float(np.sum(n * raw)) / float(np.sum(n)))
+    var = raw * scale
+    if np.any(var <= 0):
+        raise FamwiseInputError("a group of the pilot has no residual spread after the "
+                                "blocks are removed; give sd=[...] instead")
+    sd = np.sqrt(var)
+    z = res / sd[layout.codes]
+    z = (z - z.mean()) / z.std()
+    terms = [t.name for t in fit.terms[1:]]
+    return {"sd": [float(v) for v in sd], "errors": z,
+            "model": {"terms": terms, "residual_df": int(fit.df), "mse": float(fit.mse)},
+            "note": (f"The pilot's {', '.join(terms)} effects were removed by the additive "
+                     f"model; the plan simulates the comparisons at the residual spread "
+                     f"(mean square {fit.mse:.4g} on {fit.df} df) as a one-way design, "
+                     f"which is slightly optimistic for a small blocked trial (a complete "
+                     f"block design has (n - 1)(k - 1) error df, not N - k).")}
+
+
 def _summaries(rejects: np.ndarray, true: np.ndarray) -> tuple[float, float, float]:
     hit = rejects[:, true]
     return float(hit.mean()), float(hit.any(axis=1).mean()), float(hit.all(axis=1).mean())
@@ -451,18 +489,15 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
         import os
         intake = load_data(data, response, group, **read_options)
         layout = intake.layout
-        design = getattr(layout, "design", None)
-        if design is not None and not design.is_empty:
-            raise FamwiseInputError(
-                "plan simulates one-way designs; this pilot carries blocks or covariates, "
-                "which plan does not model yet: plan from the residual SDs with sd=[...]")
         st = layout.stats
         if np.any(st.n < 2):
             small = layout.labels[int(np.argmin(st.n))]
             raise FamwiseInputError(f"group {small!r} of the pilot has fewer than 2 values, so "
                                     f"its SD is unknown; give sd=[...] instead")
         k, labels = layout.k, layout.labels
-        sds = _check_sd(sd) if sd is not None else [float(v) for v in st.sd]
+        blocked = _blocked_pilot(layout)
+        pilot_sd = blocked["sd"] if blocked else [float(v) for v in st.sd]
+        sds = _check_sd(sd) if sd is not None else pilot_sd
         if len(sds) != k:
             raise FamwiseInputError(f"sd gives {len(sds)} SDs but the pilot has {k} groups "
                                     f"({', '.join(labels)})")
@@ -472,7 +507,12 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
         if shape not in ("normal", "observed"):
             raise FamwiseInputError(f"shape must be 'normal' or 'observed'; got {shape!r}")
         from ..diagnostics.shape import standardised_residuals
-        errors = standardised_residuals(layout) if shape == "observed" else None
+        if shape != "observed":
+            errors = None
+        elif blocked:
+            errors = blocked["errors"]
+        else:
+            errors = standardised_residuals(layout)
         source = intake.ledger.source
         if isinstance(data, (str, os.PathLike)):
             from ..intake.reader import file_sha256
@@ -539,7 +579,10 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
         "candidates": sizes, "max_n": int(max_n),
         "pilot_n": None if data is None else [int(v) for v in layout.stats.n],
         "family": "all-pairs", "m": family.m, "policy": pol.to_dict(),
+        "pilot_model": None if data is None or not blocked else blocked["model"],
     }
+    if data is not None and blocked:
+        notes.append(blocked["note"])
     return Plan(table, recommended, settings, dict(evaluate.routes),
                 {s: list(v) for s, v in evaluate.sizes.items()}, dict(evaluate.methods),
                 tuple(notes))
