@@ -378,6 +378,40 @@ MAX_LABEL = 500
 
 
 def find_column(header: list[str], name, source: str, role: str) -> int:
+    """Return the position of the column ``name`` in ``header``; the rule for every column option.
+
+    Every option that names a column (response, group, the wide layout's
+    columns, a batch's responses and strata, and any column option added
+    later: call this function) follows one rule: **the name must match a
+    header exactly**, letter case and inner spacing included.  A header read
+    from a text file or a sheet has its surrounding white space removed
+    first; a name given with surrounding white space does not match.  A
+    name that matches no header, or matches only when case or surrounding
+    space is ignored, is refused with a one-line error that lists the
+    columns and suggests the closest (``did you mean 'Nitrate'?``).
+
+    Why exact: the name goes into the decision record and the command line
+    that reproduces the run, so it should be the file's own spelling; and a
+    file that holds both ``Nitrate`` and ``nitrate`` (or gains one later)
+    must not change meaning under a rerun.
+
+    Parameters
+    ----------
+    header : list of str
+        The column names, in file order.
+    name : str or None
+        The name asked for (None: the option was not given).
+    source : str
+        The file path or ``"<DataFrame>"``, for the message.
+    role : str
+        What the column is for (``"response"``, ``"group"``, ``"block"`` ...),
+        for the message.
+
+    Raises
+    ------
+    FamwiseInputError
+        When ``name`` is None, names no column, or names two columns.
+    """
     if name is None:
         raise FamwiseInputError(f"name the {role} column (columns in {source!r}: "
                                 f"{', '.join(map(repr, header))})")
@@ -386,13 +420,13 @@ def find_column(header: list[str], name, source: str, role: str) -> int:
         raise FamwiseInputError(f"{source!r} has {header.count(name)} columns named {name!r}")
     if name in header:
         return header.index(name)
-    folded = [h.casefold() for h in header]
-    if folded.count(name.strip().casefold()) == 1:
-        return folded.index(name.strip().casefold())
     hint = did_you_mean(name, header)
+    folded = [h.casefold() for h in header]
+    why = ("; column names must match exactly, letter case and spacing included"
+           if name.strip().casefold() in folded else "")
     raise FamwiseInputError(
         f"{source!r} has no {role} column {name!r} (columns: "
-        f"{', '.join(map(repr, header))}){hint}")
+        f"{', '.join(map(repr, header))}){hint}{why}")
 
 
 def _count(n: int, word: str) -> str:
