@@ -277,7 +277,7 @@ def power_curve_svg(n, series: dict, target: float, *, what: str = "power",
     def draw(fig):
         ax = fig.add_subplot()
         ax.axhline(target, color=INK, lw=0.9, ls=(0, (2, 2)), zorder=1, gid="target-line",
-                   label=f"target {_fmt(target)}")
+                   label=f"target {target:g}")
         for i, (name, values) in enumerate(series.items()):
             y = np.asarray(values, dtype=np.float64)
             ok = np.isfinite(y)

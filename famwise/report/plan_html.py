@@ -19,7 +19,7 @@ import numpy as np
 
 from . import figures
 from .html import CSP, _STYLE, _e, _facts, _figure, _list, _num, _table
-from .plan_text import PLAN_CAUTIONS, plan_statements
+from .plan_text import PLAN_CAUTIONS, liberal_procedures, plan_statements
 
 __all__ = ["plan_html", "PLAN_SECTIONS", "plan_command"]
 
@@ -65,11 +65,15 @@ def _curves(result) -> str:
     s = result.settings
     n = sorted(t["n_per_group"].unique())
     out = []
+    liberal = liberal_procedures(result)
     for col, what in ((f"power_{s['goal']}", f"power ({s['goal']})"),):
         series = {}
         for p in s["procedures"]:
             sub = t[t["procedure"] == p].set_index("n_per_group")[col]
-            series["automatic pipeline" if p == "auto" else p] = [
+            label = "automatic pipeline" if p == "auto" else p
+            if p in liberal:
+                label += " (liberal here)"
+            series[label] = [
                 float(sub.get(v, np.nan)) for v in n]
         svg = figures.power_curve_svg(n, series, s["target_power"], what=what,
                                       highlight="automatic pipeline")
@@ -77,7 +81,9 @@ def _curves(result) -> str:
                                 f"per procedure; the dashed line is the target "
                                 f"{s['target_power']:g}. Each point is a Monte Carlo "
                                 f"estimate from {s['replicates']} data sets (largest SE "
-                                f"{_num(float(t['mc_se'].max()))}).", "power-curves"))
+                                f"{_num(float(t['mc_se'].max()))}). Procedures marked liberal "
+                                f"exceed the familywise level at this design.",
+                                "power-curves"))
     return _section("curves", "".join(out))
 
 
@@ -93,8 +99,12 @@ def _sizes(result) -> str:
         r = r.iloc[0]
         sizes = ", ".join(map(str, result.sizes[v]))
         rows.append((name, int(v), sizes, float(r[f"power_{s['goal']}"]), float(r["fwer"])))
+    liberal = liberal_procedures(result)
+    rows = [row + ("no" if (("auto" if row[0] == "automatic pipeline" else row[0]) in liberal)
+                   else "yes",) for row in rows]
     body = _table(["procedure", "per group", "group sizes", f"power ({s['goal']})",
-                   "familywise error at the null"], rows, numeric=(1, 3, 4))
+                   "familywise error at the null", "holds its level at every size tried"],
+                  rows, numeric=(1, 3, 4))
     return _section("sizes", body + "<p>" + "</p><p>".join(
         _e(x) for x in plan_statements(result)[1:]) + "</p>")
 

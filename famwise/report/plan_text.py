@@ -6,7 +6,7 @@ import textwrap
 
 from .textformat import format_number
 
-__all__ = ["plan_text", "plan_statements", "PLAN_CAUTIONS"]
+__all__ = ["plan_text", "plan_statements", "liberal_procedures", "PLAN_CAUTIONS"]
 
 PLAN_CAUTIONS = (
     "Power is estimated at the assumed spreads and error shape; if the next trial's "
@@ -23,6 +23,16 @@ PLAN_CAUTIONS = (
 
 def _fmt(x) -> str:
     return "-" if x is None else format_number(x)
+
+
+def liberal_procedures(result) -> dict:
+    """Procedures whose estimated familywise error exceeds alpha + 2 Monte Carlo SEs
+    (the SE at a true rate of alpha) at some size tried: name -> the largest estimate."""
+    s = result.settings
+    alpha, r = s["alpha"], s["replicates"]
+    limit = alpha + 2 * (alpha * (1 - alpha) / r) ** 0.5
+    worst = result.table.groupby("procedure", sort=False)["fwer"].max()
+    return {p: float(v) for p, v in worst.items() if v > limit}
 
 
 def plan_statements(result) -> list[str]:
@@ -51,6 +61,13 @@ def plan_statements(result) -> list[str]:
             lines.append(f"{name}: {v} per group")
     out.append(f"Smallest size per group with power {s['target_power']:g} to find {what}: "
                + "; ".join(lines) + ".")
+    liberal = liberal_procedures(result)
+    if liberal:
+        listed = ", ".join(f"{'the automatic pipeline' if p == 'auto' else p} "
+                           f"(up to {v:.3f})" for p, v in liberal.items())
+        out.append(f"Not holding the familywise level at this design (estimated error at the "
+                   f"complete null above alpha + 2 SE): {listed}. Their power is partly bought "
+                   f"with false differences and is not comparable with the others'.")
     auto = rec.get("auto")
     if auto is not None:
         route = result.route_at(auto)
