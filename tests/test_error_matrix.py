@@ -6,7 +6,7 @@ designs cross balance, spread and shape; every group has the same mean (the
 complete null), so any rejection is a familywise error.
 
 * ``test_pipeline_error_matrix`` (marker ``matrix``: runs with ``make
-  test``, so in CI, and with ``make test-slow``): a direct simulation,
+  test-slow``, not in the default run that CI makes): a direct simulation,
   R = 2,000 data sets per design, each run through
   ``famwise.compare(..., procedure="auto", crosscheck=False, resamples=199)``,
   the whole pipeline as a user runs it (checks, routing, the chosen

@@ -77,12 +77,14 @@ def test_permutation_maxt_equal_spreads_holds_level():
     assert abs(rate - ALPHA) <= 3 * SE, rate
 
 
+@pytest.mark.slow   # make test-slow; the routed resampling checks stay in make test
 def test_bootstrap_maxt_equal_spreads_at_or_below_level():
     rate = familywise_error(bootstrap_maxt, EQUAL, data_seed=1002)
     print(f"\nbootstrap max-t, equal spreads: FWER {rate:.4f} ± {SE:.4f}")
     assert rate <= ALPHA + 3 * SE, rate
 
 
+@pytest.mark.slow   # make test-slow; the routed resampling checks stay in make test
 def test_bootstrap_maxt_small_groups_large_spreads_at_or_below_level():
     rate = familywise_error(bootstrap_maxt, HOSTILE, data_seed=1003)
     print(f"\nbootstrap max-t, small groups with large spreads: FWER {rate:.4f} ± {SE:.4f}")
@@ -98,6 +100,7 @@ def test_bootstrap_hall_skewed_small_groups_large_spreads_at_or_below_level():
     assert rate <= ALPHA + 3 * SE, rate
 
 
+@pytest.mark.slow   # make test-slow; the routed resampling checks stay in make test
 def test_permutation_welch_is_liberal_when_small_groups_carry_large_spreads():
     """Documents a limitation, not a target: with groups of 4-10 carrying the
     large spreads the Welch-studentized permutation max-T exceeds alpha
