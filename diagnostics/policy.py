@@ -34,6 +34,14 @@ Defaults and where they come from:
   the unequal-variance route even when the spread checks pass, and, when
   the shape is poor too, to the bootstrap rather than the permutation max-T
   (our policy, from the same matrix; no source).
+* ``rank_permutation_below = 10``: rank procedures (Dunn, Steel-Dwass,
+  Steel) use their asymptotic reference distributions (normal, the
+  studentized range or Dunnett's at df = inf) when every group has at least
+  this many values, and their permutation versions below.  The normal
+  approximation to a rank-sum statistic is commonly taken as adequate from
+  about ten per group (Hollander, Wolfe & Chicken, *Nonparametric
+  Statistical Methods*, 3rd ed., ch. 4, from memory); the permutation
+  version is exact at any size, so the threshold only trades time.
 """
 
 from __future__ import annotations
@@ -65,6 +73,7 @@ class Policy:
     welch_when_small_unbalanced: bool = True
     unbalanced_ratio: float = 1.5
     calibration_replicates: int = 3000
+    rank_permutation_below: int = 10
 
     def replace(self, **changes) -> "Policy":
         """Return a copy with ``changes`` applied (names checked)."""
@@ -90,6 +99,12 @@ class Policy:
 
     def to_dict(self) -> dict:
         return dataclasses.asdict(self)
+
+    def rank_method(self, group_sizes) -> str:
+        """``"permutation"`` when a group has fewer than
+        ``rank_permutation_below`` values, else ``"asymptotic"``."""
+        small = min(int(x) for x in group_sizes) < self.rank_permutation_below
+        return "permutation" if small else "asymptotic"
 
 
 def load_policy(path: str | os.PathLike | None = None, **overrides) -> Policy:

@@ -107,12 +107,18 @@ def _contrast_classical(layout: Layout, family: Family, alpha: float) -> tuple[s
 def crosscheck_procedure(procedure: str, family: Family) -> str:
     """Return the independent second procedure for ``procedure`` (DESIGN.md):
     classical -> permutation; unequal-variance -> bootstrap; resampling -> its
-    closed-form counterpart."""
+    closed-form counterpart; ranks -> Brunner-Munzel (or, from it, Steel-Dwass
+    or Steel)."""
     route = CATALOGUE[procedure].route
     if route in ("classical", "fdr"):
         return "permutation-maxt"
     if route == "unequal":
         return "bootstrap-maxt"
+    if route == "ranks":
+        # rank procedures: shift-type ranks <-> relative effects (Brunner-Munzel)
+        if procedure != "brunner-munzel-maxt":
+            return "brunner-munzel-maxt"
+        return "steel" if family.kind == "vs-reference" else "steel-dwass"
     if procedure.startswith("permutation"):
         return {"all-pairs": "tukey-kramer", "vs-reference": "dunnett"}.get(family.kind, "scheffe")
     return {"all-pairs": "dunnett-t3", "vs-reference": "welch-dunnett"}.get(family.kind,

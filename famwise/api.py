@@ -7,6 +7,7 @@ line and batch sit above this module.
 
 from __future__ import annotations
 
+import dataclasses
 import os
 import shlex
 import warnings
@@ -182,11 +183,14 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
         reps = 2000 if calibrate is True else int(calibrate)
         calibration = calibrate_layout(layout, fam, alpha=alpha, replicates=reps, seed=seed,
                                        policy=pol)
+    from .procedures.omnibus import omnibus_test
+    omnibus = omnibus_test(route.route, layout)
     record = _record(intake, data, fam, alpha, margin, findings, pol, route, check, table,
                      command, response, group, seed)
+    record = dataclasses.replace(record, omnibus=omnibus.to_dict())
     return Comparison(groups=groups, comparisons=table, decision=record, crosscheck=check,
                       ledger=ledger, findings=findings, layout=layout, family=fam,
-                      calibration=calibration)
+                      calibration=calibration, omnibus=omnibus)
 
 
 def calibrate(data, response=None, group=None, *, family="all-pairs", reference=None,
@@ -221,7 +225,7 @@ def calibrate(data, response=None, group=None, *, family="all-pairs", reference=
 def _run(name, layout, fam, alpha, alternative, resampling_options) -> pd.DataFrame:
     info = CATALOGUE[name]
     options = {}
-    if info.route == "resample":
+    if info.route in ("resample", "ranks"):
         options.update(resampling_options)
     if alternative != "two-sided":
         options["alternative"] = alternative

@@ -35,6 +35,10 @@ class Comparison:
         Every input row: used, or set aside and why.
     findings : Findings
         The diagnostic checks.
+    omnibus : Omnibus or None
+        The route's omnibus test (ANOVA F, Welch's ANOVA or Kruskal-Wallis):
+        ``.test``, ``.statistic``, ``.df``, ``.p``
+        (:mod:`famwise.procedures.omnibus`).
     """
 
     groups: pd.DataFrame = field(repr=False)
@@ -46,6 +50,7 @@ class Comparison:
     layout: Any = field(repr=False)
     family: Any = field(repr=False)
     calibration: Any = field(default=None, repr=False)
+    omnibus: Any = field(default=None, repr=False)
 
     @property
     def procedure(self) -> str:

@@ -30,7 +30,7 @@ from typing import Callable
 import numpy as np
 
 from ..core.errors import FamwiseInputError
-from . import kernels
+from . import kernels, score_kernels
 from .dask_client import dask_session
 
 __all__ = ["BACKENDS", "ResamplingProblem", "ChunkResult", "ResamplingRun",
@@ -48,7 +48,8 @@ _PROGRESS_AFTER = 2.0          # seconds of estimated run time
 class ResamplingProblem:
     """Everything a chunk kernel needs about one data set and family.
 
-    ``kernel`` names a function of :mod:`famwise.resample.kernels`;
+    ``kernel`` names a function of :mod:`famwise.resample.kernels` or
+    :mod:`famwise.resample.score_kernels`;
     ``args`` are its leading arguments (data, family, thresholds), to which
     the engine appends ``stepdown, size, rng_state``.
     """
@@ -170,7 +171,7 @@ def chunk_sizes(resamples: int, chunk_size: int) -> list[int]:
 
 def _run_chunk(problem: ResamplingProblem, stepdown: bool, size: int,
                rng_state: np.ndarray) -> ChunkResult:
-    fn = getattr(kernels, problem.kernel)
+    fn = getattr(kernels, problem.kernel, None) or getattr(score_kernels, problem.kernel)
     maxima, hm, hs = fn(*problem.args, stepdown, size, rng_state)
     return ChunkResult(size, maxima, hm, hs)
 

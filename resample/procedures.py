@@ -18,17 +18,17 @@ p-values are (1 + hits) / (1 + B) (Phipson & Smyth 2010).  The raw result
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 
-from ..core.errors import FamwiseInputError, FamwiseWarning
+from ..core.errors import FamwiseInputError
 from ..core.families import Family
 from ..core.layout import Layout
 from ..core.table import comparisons_table
 from . import engine
+from .maxt import MC_LEVEL, UnsettledWarning, run_maxt
 from .statistics import (ALTERNATIVES, HALL_A_MAX, family_weights, hall_inverse,
                          observed_statistics, ssq_floor, trimmed_terms)
 
@@ -38,12 +38,6 @@ __all__ = ["permutation_maxt", "permutation_stepdown", "bootstrap_maxt",
 
 AUTO_START = 999                 # first B of resamples="auto"
 DEFAULT_MAX_RESAMPLES = 127_999  # cap of resamples="auto" (7 doublings)
-MC_LEVEL = 0.99                  # level of the interval for p that decides "unsettled"
-_Z_MC = 2.5758293035489004       # scipy.stats.norm.ppf(0.995)
-
-
-class UnsettledWarning(FamwiseWarning, RuntimeWarning):
-    """Some comparisons' 99% Monte Carlo interval for p still contains alpha."""
 
 
 @dataclass(frozen=True)
@@ -224,26 +218,6 @@ def _bootstrap_problem(layout, family, obs, opts) -> engine.ResamplingProblem:
 
 # --- p-values, intervals, Monte Carlo error -----------------------------------
 
-def _adjust(run, obs, stepdown):
-    b = run.resamples
-    p_marginal = (1.0 + run.hits_marginal) / (1.0 + b)
-    p_single = (1.0 + run.hits_single(obs.thr)) / (1.0 + b)
-    if not stepdown:
-        return p_marginal, p_single
-    order = np.argsort(-obs.u, kind="stable")
-    # Westfall & Young (1993), Algorithm 2.8: by rank, then made monotone.
-    p_rank = np.maximum.accumulate((1.0 + run.hits_stepdown) / (1.0 + b))
-    p_step = np.empty_like(p_rank)
-    p_step[order] = p_rank
-    return p_marginal, p_step
-
-
-def _mc(p, b, alpha):
-    mc_error = np.sqrt(p * (1.0 - p) / b)
-    unsettled = np.abs(p - alpha) < _Z_MC * mc_error
-    return mc_error, unsettled
-
-
 def _centred(layout: Layout) -> Layout:
     """The same data less their median.
 
@@ -274,27 +248,11 @@ def _run(procedure, method, stepdown, layout, family, *, alpha, resamples, seed,
     obs = observed_statistics(layout, family, opts.statistic, opts.alternative, opts.trim)
     build = _permutation_problem if method == "permutation" else _bootstrap_problem
     problem = build(layout, family, obs, opts)
-    b, run, seconds = opts.resamples, None, 0.0
-    while True:
-        run = engine.run_resamples(problem, resamples=b, seed=opts.seed,
-                                   chunk_size=opts.chunk_size, n_jobs=opts.n_jobs,
-                                   backend=opts.backend, scheduler=opts.scheduler,
-                                   progress=opts.progress, stepdown=stepdown,
-                                   previous=run)
-        seconds += run.seconds
-        p_marginal, p_adjusted = _adjust(run, obs, stepdown)
-        mc_error, unsettled = _mc(p_adjusted, b, opts.alpha)
-        if not opts.auto or not unsettled.any() or b >= opts.max_resamples:
-            break
-        b = min(2 * (b + 1) - 1, opts.max_resamples)
+    res = run_maxt(problem, obs.u, obs.thr, opts, stepdown=stepdown)
+    run, b, seconds = res.run, res.resamples, res.seconds
+    p_marginal, p_adjusted = res.p_marginal, res.p_adjusted
+    mc_error, unsettled = res.mc_error, res.unsettled
     n_unsettled = int(unsettled.sum())
-    if n_unsettled:
-        how = ("raise max_resamples" if opts.auto
-               else "use more resamples or resamples='auto'")
-        warnings.warn(
-            f"{n_unsettled} of {family.m} comparisons are unsettled at B={b}: "
-            f"their {MC_LEVEL:.0%} Monte Carlo interval for p contains "
-            f"alpha={opts.alpha:g}; {how}", UnsettledWarning, stacklevel=3)
     # Simultaneous intervals from the (1 - alpha) quantile of the max statistic.
     crit = run.critical_value(opts.alpha)
     est, se = obs.estimate, obs.std_error

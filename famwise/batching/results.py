@@ -104,7 +104,8 @@ class BatchResult:
             view["stratum"] = t["stratum"]
         ran = t["status"] == "ok"
         view["procedure"] = t["procedure"].where(ran, "(" + t["status"] + ")")
-        view["omnibus"] = t["omnibus"].map({"anova-f": "F", "welch-anova": "Welch"})
+        view["omnibus"] = t["omnibus"].map({"anova-f": "F", "welch-anova": "Welch",
+                                            "kruskal-wallis": "KW"})
         view["p"] = t["omnibus_p"]
         view["q"] = t["omnibus_q"]
         view["screened"] = t["omnibus_reject"]
@@ -115,7 +116,8 @@ class BatchResult:
         view["set_aside"] = t["n_set_aside"]
         lines.append(frame_text(_display(view), max_label=26))
         lines += textwrap.wrap(
-            f"(p: omnibus p-value, F = one-way ANOVA, Welch = Welch's ANOVA; q: "
+            f"(p: omnibus p-value, F = one-way ANOVA, Welch = Welch's ANOVA, KW = "
+            f"Kruskal-Wallis; q: "
             f"{fdr['method'].upper()}-adjusted across tasks; screened: q <= "
             f"{fdr['level']:g}; different: comparisons declared different / comparisons)",
             width=width)

@@ -25,7 +25,10 @@ The pipeline, top to bottom:
 4. the omnibus p-value of each task that ran: Fisher's one-way ANOVA F test
    (``anova-f``) where the route was classical (or ``bh`` on pooled t),
    Welch's (1951) heteroscedastic ANOVA (``welch-anova``) where the route
-   was unequal-variance or resampling; the column ``omnibus`` names the test;
+   was unequal-variance or resampling, Kruskal-Wallis (``kruskal-wallis``)
+   where it was ranks (:mod:`famwise.procedures.omnibus`, the test
+   ``compare`` records as ``result.omnibus``); the column ``omnibus`` names
+   the test;
 5. Benjamini-Hochberg (1995), or Benjamini-Yekutieli (2001) for any
    dependence, across those omnibus p-values, at level ``alpha``: columns
    ``omnibus_p``, ``omnibus_q`` (adjusted) and ``omnibus_reject``.

@@ -17,13 +17,9 @@ import pandas as pd
 from ..core.errors import FamwiseInputError, FamwiseWarning
 from ..intake.reader import Intake, read
 from ..intake.ledger import Dropped, Ledger
+from ..procedures.omnibus import OMNIBUS  # noqa: F401  (re-exported for run.py)
 
 
-OMNIBUS = {
-    "anova-f": "one-way ANOVA F test (pooled variance), for the classical route",
-    "welch-anova": "Welch's (1951) ANOVA (unequal variances), for the unequal-variance "
-                   "and resampling routes",
-}
 
 
 _CENSORED_REASONS = ("below-limit", "not-detected")
@@ -145,15 +141,9 @@ def _remap(intake: Intake, rows: np.ndarray, source: str, notes) -> Intake:
 
 
 def _omnibus(result):
-    from ..procedures.classical import anova_table
-    from ..procedures.unequal import welch_anova
-    route = result.decision.route["route"]
-    if route in ("classical", "fdr"):
-        return "anova-f", float(anova_table(result.layout).p)
-    try:
-        return "welch-anova", float(welch_anova(result.layout).p)
-    except (FamwiseInputError, ZeroDivisionError, FloatingPointError):
-        return "welch-anova", float("nan")
+    """The task's omnibus test, as :func:`famwise.compare` recorded it
+    (:mod:`famwise.procedures.omnibus`)."""
+    return result.omnibus.test, float(result.omnibus.p)
 
 
 def _run_task(task: _Task, source: str, group: str, notes, options: dict, render: bool,

@@ -23,6 +23,9 @@ always present, ``null`` where it does not apply:
 ``crosscheck``   primary, second, agree, total, sentence, disagreements
 ``resampling``   B, seed, chunks, backend, n_jobs, critical value, largest
                  Monte Carlo SE, unsettled comparisons (null if no resampling)
+``omnibus``      the route's omnibus test: test ("anova-f", "welch-anova",
+                 "kruskal-wallis"), statistic, df (a list), p, note (why the
+                 figures are null when the test is undefined for the data)
 ``environment``  famwise, python, numpy, scipy, pandas, numba, platform
 ``command``      the command line or call that reproduces the run
 """
@@ -72,6 +75,7 @@ class DecisionRecord:
     resampling: dict | None
     environment: dict
     command: str
+    omnibus: dict | None = None
     schema: str = SCHEMA
 
     def to_dict(self) -> dict:
@@ -115,6 +119,11 @@ class DecisionRecord:
             if route["alternatives"]:
                 text.append("Set aside: " + "; ".join(
                     f"{a['procedure']} ({a['why']})" for a in route["alternatives"]) + ".")
+        if self.omnibus and self.omnibus.get("p") is not None:
+            o = self.omnibus
+            df = ", ".join(f"{d:.4g}" for d in o["df"])
+            text.append(f"The omnibus test ({o['test']}) gave {o['statistic']:.4g} on df "
+                        f"{df}, p = {o['p']:.2g}.")
         if self.crosscheck:
             text.append(self.crosscheck["sentence"])
         if self.resampling:

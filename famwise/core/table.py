@@ -18,6 +18,10 @@ cross-check, the letters and the report read one set of columns:
 ``reject``        p_adjusted <= alpha
 ``procedure``     the procedure identifier
 ``mc_error``      (resampling only) Monte Carlo standard error of p_adjusted
+``relative_effect`` (Brunner-Munzel only) P(X_b < X_a) + P(X_b = X_a)/2, the
+                  probability that a value of group_a exceeds one of group_b,
+                  ties counting half; with ``relative_effect_lower`` and
+                  ``relative_effect_upper``, its interval, when given
 ``practical``     (with a margin only) the practical classification
 
 This module sits at the bottom of the package: it imports nothing else from
@@ -62,13 +66,15 @@ def comparisons_table(
     alpha: float,
     procedure: str,
     mc_error=None,
+    relative_effect=None,
     **extra,
 ) -> pd.DataFrame:
     """Build the comparisons table for ``family`` (the one constructor).
 
     Numeric arguments are arrays of length ``family.m`` (or scalars, which are
-    broadcast).  ``reject`` is derived as ``p_adjusted <= alpha``.  Extra
-    keyword columns are appended after the standard ones, ``mc_error`` first.
+    broadcast).  ``reject`` is derived as ``p_adjusted <= alpha``.  Optional
+    columns appear only when given: ``mc_error`` first, then
+    ``relative_effect``, then extra keyword columns in the order given.
     """
     m = family.m
     data = {
@@ -88,6 +94,8 @@ def comparisons_table(
     data["procedure"] = [procedure] * m
     if mc_error is not None:
         data["mc_error"] = _column(mc_error, m, "mc_error")
+    if relative_effect is not None:
+        data["relative_effect"] = _column(relative_effect, m, "relative_effect")
     for key, value in extra.items():
         arr = np.asarray(value)
         if arr.dtype.kind == "b":

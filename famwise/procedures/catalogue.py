@@ -23,7 +23,7 @@ class ProcedureInfo:
     name: str
     module: str
     function: str
-    route: str            # "classical" | "unequal" | "resample" | "fdr"
+    route: str            # "classical" | "unequal" | "resample" | "ranks" | "fdr"
     families: tuple[str, ...]
     purpose: str
 
@@ -93,6 +93,26 @@ CATALOGUE: dict[str, ProcedureInfo] = {p.name: p for p in [
                   "bootstrap_hall", "resample", _ALL,
                   "Bootstrap max-t of Welch statistics with Hall's skewness "
                   "correction; skewed data with small groups."),
+    ProcedureInfo("dunn-holm", "famwise.procedures.ranks", "dunn_holm", "ranks", _PAIRS,
+                  "Dunn's z on the joint ranks (tie-corrected) with Holm's step-down "
+                  "adjustment; skewed data, outliers or ordinal scores."),
+    ProcedureInfo("dunn-bonferroni", "famwise.procedures.ranks", "dunn_bonferroni", "ranks",
+                  _PAIRS,
+                  "Dunn's z on the joint ranks (tie-corrected) with Bonferroni's "
+                  "adjustment, as Dunn proposed it."),
+    ProcedureInfo("steel-dwass", "famwise.procedures.ranks", "steel_dwass", "ranks",
+                  ("all-pairs",),
+                  "All pairs by each pair's own Wilcoxon rank-sum z against the "
+                  "studentized range (Steel-Dwass-Critchlow-Fligner), with "
+                  "simultaneous intervals for the Hodges-Lehmann shift."),
+    ProcedureInfo("steel", "famwise.procedures.ranks", "steel", "ranks", ("vs-reference",),
+                  "Each group against a reference by its own Wilcoxon rank-sum z "
+                  "(Steel), Dunnett-type joint distribution; one- or two-sided."),
+    ProcedureInfo("brunner-munzel-maxt", "famwise.procedures.brunner_munzel",
+                  "brunner_munzel_maxt", "ranks", _PAIRS,
+                  "Brunner-Munzel relative effects with a studentised-permutation "
+                  "max-T; rank comparisons that stay valid when spreads or shapes "
+                  "differ."),
     ProcedureInfo("bh", "famwise.procedures.classical", "bh", "fdr", _ALL,
                   "Benjamini-Hochberg false discovery rate (not familywise "
                   "error) on pooled t; exploratory families."),

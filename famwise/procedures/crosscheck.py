@@ -90,9 +90,9 @@ def crosscheck(primary: pd.DataFrame, second_procedure: str, layout, family, *,
                           primary.iloc[:0], alpha), 0, 0,
                           note=f"{second_procedure} does not handle this family; no cross-check.")
     options = {}
-    if info.route == "resample":
+    if info.route in ("resample", "ranks"):
         options = dict(resampling or {})
-        if statistic:
+        if statistic and info.route == "resample":
             options["statistic"] = statistic
     if alternative != "two-sided":
         options["alternative"] = alternative

@@ -1,0 +1,323 @@
+"""Compiled permutation loops for rank and score statistics (numba, ``nogil``, cached).
+
+Two kinds of statistic, both permuting all N group labels, with the chunk
+contract of :mod:`famwise.resample.kernels` (``maxima``, ``hits_marginal``,
+``hits_stepdown``; PCG32 stream per chunk, Lemire's bounded draws, inputs
+never written):
+
+* :func:`score_sum_chunk`: *linear* score statistics, a contrast of group
+  means of fixed scores (ranks for Dunn's z, or any scores computed once)
+  divided by a standard error that does not change under permutation
+  (``vm[g]``, the variance of group g's mean score).  The loop is the Welch
+  permutation loop of :func:`famwise.resample.kernels.permutation_chunk`
+  without the sums of squares.
+* :func:`placement_point_chunk` and :func:`placement_interval_chunk`:
+  *pairwise* U-statistics, U_ij = sum_{a in i} sum_{b in j} S[a, b], with
+  an antisymmetric pairwise score S[a, b] in {-1, 0, +1}: +1 when b is
+  known to lie above a, -1 when below, 0 when neither can be said (a tie,
+  or two values below detection limits).  Each comparison's statistic is
+  re-studentised in every permutation.
+
+The placement structure
+-----------------------
+The N x N matrix S is never formed.  Every observation a has a lower and an
+upper end, ``lo_a <= hi_a``, and b lies above a when ``hi_a < lo_b``
+(a point value has lo = hi; a value below a detection limit L has
+lo = -inf and an open upper end at L).  :class:`famwise.resample.scores.Placements`
+turns the ends into one sorted *event* sequence of 2N events (ties: an
+open upper end before a lower end before a closed upper end), or, for
+point data, into the sorted order with its tie blocks.  One scan over it
+with per-group counters gives, for each observation a and group g,
+
+    G[a, g] = sum_{b in g} S[a, b] = #{b in g above a} - #{b in g below a},
+
+in O(N k) per permutation.  The kernels accumulate, per group c and group g,
+
+    A[c, g]  = sum_{a in c} G[a, g]
+    Q2[c, g] = sum_{a in c} G[a, g]**2
+    Qx[c, g] = sum_{a in c} G[a, c] G[a, g]
+
+and form, for comparison j = (i, l) (``pa[j]``, ``pb[j]``, oriented so that
+a positive statistic means group i tends to be larger):
+
+* ``mode = MANTEL``: T = -A[i, l] / sqrt(V), with Mantel's (1967)
+  permutation variance of a U-statistic in the pooled sample of i and l,
+  V = n_i n_l / (n (n - 1)) sum_{a in i or l} h_a**2, h_a = G[a, i] + G[a, l]
+  (n = n_i + n_l).  With S the sign of the difference this is the pair's
+  Wilcoxon-Mann-Whitney statistic with the tie-corrected variance
+  (Steel-Dwass, Steel); with Gehan's (1965) score on censored values it is
+  the Gehan statistic standardised as Mantel proposed.
+* ``mode = FIXED``: T = -A[i, l] / sqrt(fixed_v[j]), a variance that does not
+  change under permutation (untied point data: V = n_i n_l (n + 1) / 3).
+* ``mode = BRUNNER_MUNZEL``: the Brunner-Munzel (2000) statistic with x = l,
+  y = i: p = 1/2 + A[l, i] / (2 n_l n_i), placements P_y(a) = (n_i - G[a, i]) / 2,
+  S_x^2 their variance over a in l (and S_y^2 likewise), and
+  T = A[l, i] / (2 sqrt(D)), D = n_l S_x^2 + n_i S_y^2 (Neubert & Brunner 2007:
+  the studentised statistic, recomputed in each permutation).  D = 0 (both
+  groups' placements constant: complete separation, or all tied) is
+  replaced by 1/4, the smallest value a non-zero D can take (placements lie
+  on a grid of one half, and one placement off by one half gives
+  n S^2 = 1/4); so complete separation gives a large finite statistic and
+  an all-tied pair gives 0, never a NaN.
+
+A new pairwise score plugs in by building its ``Placements`` (its two ends
+per observation); a score that is not of this interval form needs its own
+G[a, g] fill, and the accumulation and statistics above stay as they are.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+from .kernels import _M32, _MULT, _S32, _TWO32, _family_stats, _pcg_init, _pcg_out, _tally
+
+__all__ = ["score_sum_chunk", "placement_point_chunk", "placement_interval_chunk",
+           "MANTEL", "FIXED", "BRUNNER_MUNZEL"]
+
+MANTEL = 0
+FIXED = 1
+BRUNNER_MUNZEL = 2
+
+
+@njit(cache=True, nogil=True)
+def score_sum_chunk(x, seg_lo, seg_hi, seg_group, n, largest, tot_s, vm, row_ptr, col,
+                    w, w2, se2_floor, sign, two_sided, thr, order, stepdown, size,
+                    rng_state):
+    """Run ``size`` permutations of a linear score statistic.
+
+    ``x`` holds the scores (centred) with the largest group first; positions
+    ``seg_lo[s] .. seg_hi[s]-1`` belong to group ``seg_group[s]``, filled by
+    a partial Fisher-Yates shuffle (N - n_largest draws) as in
+    :func:`famwise.resample.kernels.permutation_chunk`.  ``vm[g]`` is the
+    fixed variance of group g's mean score.
+    """
+    buf = x.copy()
+    k = n.size
+    m = row_ptr.size - 1
+    maxima = np.empty(size)
+    hits_marginal = np.zeros(m, dtype=np.int64)
+    hits_stepdown = np.zeros(m, dtype=np.int64)
+    ustat = np.empty(m)
+    mean = np.empty(k)
+    state, inc = _pcg_init(rng_state[0], rng_state[1])
+    for b in range(size):
+        rest = tot_s
+        for s_ in range(seg_group.size):
+            g = seg_group[s_]
+            acc = 0.0
+            for i in range(seg_hi[s_] - 1, seg_lo[s_] - 1, -1):
+                bound = np.uint64(i + 1)
+                old = state
+                state = old * _MULT + inc
+                prod = _pcg_out(old) * bound
+                low = prod & _M32
+                if low < bound:
+                    thresh = (_TWO32 - bound) % bound
+                    while low < thresh:
+                        old = state
+                        state = old * _MULT + inc
+                        prod = _pcg_out(old) * bound
+                        low = prod & _M32
+                j = np.int64(prod >> _S32)
+                v = buf[j]
+                buf[j] = buf[i]
+                buf[i] = v
+                acc += v
+            mean[g] = acc / n[g]
+            rest -= acc
+        mean[largest] = rest / n[largest]
+        # _family_stats reads vm and never writes it.
+        maxima[b] = _family_stats(mean, vm, row_ptr, col, w, w2, se2_floor, sign,
+                                  two_sided, thr, order, ustat, hits_marginal,
+                                  hits_stepdown, stepdown)
+    return maxima, hits_marginal, hits_stepdown
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _shuffle(lab, state, inc):
+    """Full Fisher-Yates pass over ``lab`` in place; returns the new state."""
+    for i in range(lab.size - 1, 0, -1):
+        bound = np.uint64(i + 1)
+        old = state
+        state = old * _MULT + inc
+        prod = _pcg_out(old) * bound
+        low = prod & _M32
+        if low < bound:
+            thresh = (_TWO32 - bound) % bound
+            while low < thresh:
+                old = state
+                state = old * _MULT + inc
+                prod = _pcg_out(old) * bound
+                low = prod & _M32
+        j = np.int64(prod >> _S32)
+        g = lab[j]
+        lab[j] = lab[i]
+        lab[i] = g
+    return state
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _accumulate(c, weight, gv, acc_a, acc_q2, acc_qx, k, squares):
+    gc = gv[c]
+    for g in range(k):
+        v = gv[g]
+        acc_a[c, g] += weight * v
+    if squares:
+        for g in range(k):
+            v = gv[g]
+            acc_q2[c, g] += weight * v * v
+            acc_qx[c, g] += weight * gc * v
+
+
+@njit(cache=True, nogil=True)
+def _pair_stats(acc_a, acc_q2, acc_qx, n, mode, pa, pb, fixed_v, se2_floor, sign,
+                two_sided, ustat):
+    """Each comparison's statistic from the accumulated sums (module notes)."""
+    m = pa.size
+    for j in range(m):
+        i = pa[j]
+        l = pb[j]
+        ni = np.float64(n[i])
+        nl = np.float64(n[l])
+        if mode == 2:
+            sx = (acc_q2[l, i] - acc_a[l, i] * acc_a[l, i] / nl) / (4.0 * (nl - 1.0))
+            sy = (acc_q2[i, l] - acc_a[i, l] * acc_a[i, l] / ni) / (4.0 * (ni - 1.0))
+            d = nl * sx + ni * sy
+            if d < 0.25:
+                d = 0.25
+            t = acc_a[l, i] / (2.0 * np.sqrt(d))
+        else:
+            if mode == 1:
+                v = fixed_v[j]
+            else:
+                hh = (acc_qx[i, i] + 2.0 * acc_qx[i, l] + acc_q2[i, l]
+                      + acc_qx[l, l] + 2.0 * acc_qx[l, i] + acc_q2[l, i])
+                nn = ni + nl
+                v = ni * nl * hh / (nn * (nn - 1.0))
+            if v < se2_floor[j]:
+                v = se2_floor[j]
+            t = -acc_a[i, l] / np.sqrt(v)
+        ustat[j] = abs(t) if two_sided else sign * t
+
+
+@njit(cache=True, nogil=True)
+def placement_point_chunk(block_ptr, lab0, n, mode, pa, pb, fixed_v, se2_floor, sign,
+                          two_sided, thr, order, stepdown, size, rng_state):
+    """Run ``size`` permutations of pairwise U-statistics on point data.
+
+    ``lab0[p]`` is the group of the observation at sorted position p;
+    ``block_ptr`` bounds the tie blocks of the sorted values.  Each
+    permutation shuffles the labels over the positions (a full Fisher-Yates
+    pass) and scans the blocks once: an observation of group c in a block
+    with ``tie[g]`` members of group g and ``cnt[g]`` below it has
+    G[g] = n_g - 2 cnt[g] - tie[g].
+    """
+    lab = lab0.copy()
+    k = n.size
+    m = pa.size
+    nb = block_ptr.size - 1
+    squares = mode != 1
+    maxima = np.empty(size)
+    hits_marginal = np.zeros(m, dtype=np.int64)
+    hits_stepdown = np.zeros(m, dtype=np.int64)
+    ustat = np.empty(m)
+    acc_a = np.empty((k, k))
+    acc_q2 = np.empty((k, k))
+    acc_qx = np.empty((k, k))
+    cnt = np.empty(k)
+    tie = np.zeros(k)
+    gv = np.empty(k)
+    nf = n.astype(np.float64)
+    state, inc = _pcg_init(rng_state[0], rng_state[1])
+    for b in range(size):
+        state = _shuffle(lab, state, inc)
+        for c in range(k):
+            cnt[c] = 0.0
+            for g in range(k):
+                acc_a[c, g] = 0.0
+                acc_q2[c, g] = 0.0
+                acc_qx[c, g] = 0.0
+        for s_ in range(nb):
+            lo = block_ptr[s_]
+            hi = block_ptr[s_ + 1]
+            if hi - lo == 1:
+                c = lab[lo]
+                for g in range(k):
+                    gv[g] = nf[g] - 2.0 * cnt[g]
+                gv[c] -= 1.0
+                _accumulate(c, 1.0, gv, acc_a, acc_q2, acc_qx, k, squares)
+                cnt[c] += 1.0
+                continue
+            for p in range(lo, hi):
+                tie[lab[p]] += 1.0
+            for g in range(k):
+                gv[g] = nf[g] - 2.0 * cnt[g] - tie[g]
+            for c in range(k):
+                if tie[c] > 0.0:
+                    _accumulate(c, tie[c], gv, acc_a, acc_q2, acc_qx, k, squares)
+            for g in range(k):
+                cnt[g] += tie[g]
+                tie[g] = 0.0
+        _pair_stats(acc_a, acc_q2, acc_qx, n, mode, pa, pb, fixed_v, se2_floor, sign,
+                    two_sided, ustat)
+        maxima[b] = _tally(ustat, thr, order, hits_marginal, hits_stepdown, stepdown)
+    return maxima, hits_marginal, hits_stepdown
+
+
+@njit(cache=True, nogil=True)
+def placement_interval_chunk(ev_elem, ev_hi, lab0, n, mode, pa, pb, fixed_v, se2_floor,
+                             sign, two_sided, thr, order, stepdown, size, rng_state):
+    """Run ``size`` permutations of pairwise U-statistics on interval data.
+
+    ``ev_elem[e]`` is the observation of event e and ``ev_hi[e]`` 1 for its
+    upper end, 0 for its lower end, in the sorted event order of
+    :class:`famwise.resample.scores.Placements`.  At a lower end of a the
+    kernel records ``below[a, g]`` (upper ends of group g passed); at its
+    upper end, G[g] = n_g - (lower ends of g passed) - below[a, g].
+    ``lab0[a]`` is the group of observation a; the labels are shuffled over
+    the observations.
+    """
+    lab = lab0.copy()
+    k = n.size
+    m = pa.size
+    big_n = lab.size
+    squares = mode != 1
+    maxima = np.empty(size)
+    hits_marginal = np.zeros(m, dtype=np.int64)
+    hits_stepdown = np.zeros(m, dtype=np.int64)
+    ustat = np.empty(m)
+    acc_a = np.empty((k, k))
+    acc_q2 = np.empty((k, k))
+    acc_qx = np.empty((k, k))
+    cnt_lo = np.empty(k)
+    cnt_hi = np.empty(k)
+    below = np.empty((big_n, k))
+    gv = np.empty(k)
+    nf = n.astype(np.float64)
+    state, inc = _pcg_init(rng_state[0], rng_state[1])
+    for b in range(size):
+        state = _shuffle(lab, state, inc)
+        for c in range(k):
+            cnt_lo[c] = 0.0
+            cnt_hi[c] = 0.0
+            for g in range(k):
+                acc_a[c, g] = 0.0
+                acc_q2[c, g] = 0.0
+                acc_qx[c, g] = 0.0
+        for e in range(ev_elem.size):
+            a = ev_elem[e]
+            c = lab[a]
+            if ev_hi[e] == 0:
+                for g in range(k):
+                    below[a, g] = cnt_hi[g]
+                cnt_lo[c] += 1.0
+            else:
+                for g in range(k):
+                    gv[g] = nf[g] - cnt_lo[g] - below[a, g]
+                _accumulate(c, 1.0, gv, acc_a, acc_q2, acc_qx, k, squares)
+                cnt_hi[c] += 1.0
+        _pair_stats(acc_a, acc_q2, acc_qx, n, mode, pa, pb, fixed_v, se2_floor, sign,
+                    two_sided, ustat)
+        maxima[b] = _tally(ustat, thr, order, hits_marginal, hits_stepdown, stepdown)
+    return maxima, hits_marginal, hits_stepdown
