@@ -202,65 +202,149 @@ def _pair_stats(acc_a, acc_q2, acc_qx, n, mode, pa, pb, fixed_v, se2_floor, sign
 
 
 @njit(cache=True, nogil=True)
-def placement_point_chunk(block_ptr, lab0, n, mode, pa, pb, fixed_v, se2_floor, sign,
-                          two_sided, thr, order, stepdown, size, rng_state):
+def placement_point_chunk(block_ptr, lab0, n, mode, pa, pb, own_ptr, own_col, part_ptr,
+                          part_col, fixed_v, se2_floor, sign, two_sided, thr, order,
+                          stepdown, size, rng_state):
     """Run ``size`` permutations of pairwise U-statistics on point data.
 
     ``lab0[p]`` is the group of the observation at sorted position p;
-    ``block_ptr`` bounds the tie blocks of the sorted values.  Each
-    permutation shuffles the labels over the positions (a full Fisher-Yates
-    pass) and scans the blocks once: an observation of group c in a block
-    with ``tie[g]`` members of group g and ``cnt[g]`` below it has
-    G[g] = n_g - 2 cnt[g] - tie[g].
+    ``block_ptr`` bounds the tie blocks of the sorted values.  The
+    Fisher-Yates pass runs from the top position down, and position p is
+    final once its step is done, so the scan over the blocks (from the
+    largest values down) is fused with the shuffle.  An observation of
+    group c in a block with ``tie[g]`` members of group g and ``cnt[g]``
+    above it has G[g] = 2 cnt[g] + tie[g] - n_g.
+
+    Only what the family needs is accumulated: for group c, A[c, g] for the
+    groups g in ``own_col[own_ptr[c]:own_ptr[c+1]]`` (each pair once, the
+    other orientation by antisymmetry), and, for Brunner-Munzel, Q2[c, g]
+    for the partners ``part_col[part_ptr[c]:part_ptr[c+1]]``.  Mantel's
+    variance needs no per-observation squares on point data: the pooled
+    sum of h_a^2 is (n^3 - sum_b (t_ib + t_lb)^3) / 3 over the tie blocks b,
+    from T3[c] = sum_b t_cb^3 and M[c, g] = sum_b t_cb^2 t_gb, which only tied
+    blocks change.
     """
     lab = lab0.copy()
     k = n.size
     m = pa.size
     nb = block_ptr.size - 1
-    squares = mode != 1
+    big_n = lab.size
+    bm = mode == 2
     maxima = np.empty(size)
     hits_marginal = np.zeros(m, dtype=np.int64)
     hits_stepdown = np.zeros(m, dtype=np.int64)
     ustat = np.empty(m)
     acc_a = np.empty((k, k))
     acc_q2 = np.empty((k, k))
-    acc_qx = np.empty((k, k))
+    t3 = np.empty(k)
+    mx = np.empty((k, k))
     cnt = np.empty(k)
     tie = np.zeros(k)
-    gv = np.empty(k)
+    present = np.empty(k, dtype=np.int64)
     nf = n.astype(np.float64)
     state, inc = _pcg_init(rng_state[0], rng_state[1])
     for b in range(size):
-        state = _shuffle(lab, state, inc)
         for c in range(k):
             cnt[c] = 0.0
+            t3[c] = nf[c]
             for g in range(k):
                 acc_a[c, g] = 0.0
                 acc_q2[c, g] = 0.0
-                acc_qx[c, g] = 0.0
+                mx[c, g] = 0.0
+        hi = big_n
         for s_ in range(nb):
-            lo = block_ptr[s_]
-            hi = block_ptr[s_ + 1]
+            # blocks from the top; while loops (a range with a negative step
+            # costs a division per block, which singleton blocks cannot amortise)
+            lo = block_ptr[nb - 1 - s_]
+            i = hi - 1
+            while i >= lo and i > 0:
+                bound = np.uint64(i + 1)
+                old = state
+                state = old * _MULT + inc
+                prod = _pcg_out(old) * bound
+                low = prod & _M32
+                if low < bound:
+                    thresh = (_TWO32 - bound) % bound
+                    while low < thresh:
+                        old = state
+                        state = old * _MULT + inc
+                        prod = _pcg_out(old) * bound
+                        low = prod & _M32
+                j = np.int64(prod >> _S32)
+                lv = lab[j]
+                lab[j] = lab[i]
+                lab[i] = lv
+                i -= 1
             if hi - lo == 1:
-                c = lab[lo]
-                for g in range(k):
-                    gv[g] = nf[g] - 2.0 * cnt[g]
-                gv[c] -= 1.0
-                _accumulate(c, 1.0, gv, acc_a, acc_q2, acc_qx, k, squares)
+                c = np.int64(lab[lo])
+                for e in range(own_ptr[c], own_ptr[c + 1]):
+                    g = own_col[e]
+                    acc_a[c, g] += 2.0 * cnt[g] - nf[g]
+                if bm:
+                    for e in range(part_ptr[c], part_ptr[c + 1]):
+                        g = part_col[e]
+                        gv1 = 2.0 * cnt[g] - nf[g]
+                        acc_q2[c, g] += gv1 * gv1
                 cnt[c] += 1.0
+                hi = lo
                 continue
+            npres = 0
             for p in range(lo, hi):
-                tie[lab[p]] += 1.0
-            for g in range(k):
-                gv[g] = nf[g] - 2.0 * cnt[g] - tie[g]
-            for c in range(k):
-                if tie[c] > 0.0:
-                    _accumulate(c, tie[c], gv, acc_a, acc_q2, acc_qx, k, squares)
-            for g in range(k):
-                cnt[g] += tie[g]
-                tie[g] = 0.0
-        _pair_stats(acc_a, acc_q2, acc_qx, n, mode, pa, pb, fixed_v, se2_floor, sign,
-                    two_sided, ustat)
+                c = np.int64(lab[p])
+                if tie[c] == 0.0:
+                    present[npres] = c
+                    npres += 1
+                tie[c] += 1.0
+            for q in range(npres):
+                c = present[q]
+                w = tie[c]
+                for e in range(own_ptr[c], own_ptr[c + 1]):
+                    g = own_col[e]
+                    acc_a[c, g] += w * (2.0 * cnt[g] + tie[g] - nf[g])
+                if bm:
+                    for e in range(part_ptr[c], part_ptr[c + 1]):
+                        g = part_col[e]
+                        gv2 = 2.0 * cnt[g] + tie[g] - nf[g]
+                        acc_q2[c, g] += w * gv2 * gv2
+                else:
+                    t3[c] += w * w * w - w
+                    for r in range(npres):
+                        g = present[r]
+                        if g != c:
+                            mx[c, g] += w * w * tie[g]
+            for q in range(npres):
+                c = present[q]
+                cnt[c] += tie[c]
+                tie[c] = 0.0
+            hi = lo
+        # the other orientation of each accumulated pair, by antisymmetry
+        for c in range(k):
+            for e in range(own_ptr[c], own_ptr[c + 1]):
+                g = own_col[e]
+                acc_a[g, c] = -acc_a[c, g]
+        for j in range(m):
+            i = pa[j]
+            l = pb[j]
+            ni = nf[i]
+            nl = nf[l]
+            if bm:
+                sx = (acc_q2[l, i] - acc_a[l, i] * acc_a[l, i] / nl) / (4.0 * (nl - 1.0))
+                sy = (acc_q2[i, l] - acc_a[i, l] * acc_a[i, l] / ni) / (4.0 * (ni - 1.0))
+                d = nl * sx + ni * sy
+                if d < 0.25:
+                    d = 0.25
+                t = acc_a[l, i] / (2.0 * np.sqrt(d))
+            else:
+                if mode == 1:
+                    vv = fixed_v[j]
+                else:
+                    nn = ni + nl
+                    s3 = t3[i] + t3[l] + 3.0 * (mx[i, l] + mx[l, i])
+                    vv = ni * nl * (nn * nn * nn - s3) / (3.0 * nn * (nn - 1.0))
+                if vv < se2_floor[j]:
+                    vv = se2_floor[j]
+                t = -acc_a[i, l] / np.sqrt(vv)
+            ustat[j] = abs(t) if two_sided else sign * t
         maxima[b] = _tally(ustat, thr, order, hits_marginal, hits_stepdown, stepdown)
     return maxima, hits_marginal, hits_stepdown
 

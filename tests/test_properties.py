@@ -61,7 +61,13 @@ DUAL = {"tukey-kramer", "scheffe", "dunnett", "bonferroni", "sidak", "games-howe
         "bootstrap-hall", "welch", "lsd"}
 #: Intervals are single-step ones: excluding zero implies rejection.
 EXCLUDE_IMPLIES_REJECT = {"holm", "welch-holm", "yuen-holm", "permutation-stepdown",
-                          "bootstrap-stepdown"}
+                          "bootstrap-stepdown",
+                          # rank procedures: the Wilcoxon inversion rounds C down and
+                          # uses the untied variance (their docstrings)
+                          "steel-dwass", "steel"}
+#: Brunner-Munzel: the relative-effect interval is dual to the decisions (its
+#: docstring); the shift interval assumes a pure shift and promises nothing.
+DUAL_RELATIVE_EFFECT = {"brunner-munzel-maxt"}
 #: Benjamini-Yekutieli FCR intervals: rejection implies exclusion.
 REJECT_IMPLIES_EXCLUDE = {"bh"}
 
@@ -116,7 +122,8 @@ def _family_for(name, layout, kind):
 
 
 def _options(name):
-    return dict(resamples=B, seed=SEED) if CATALOGUE[name].route == "resample" else {}
+    return dict(resamples=B, seed=SEED) if CATALOGUE[name].route in ("resample",
+                                                                     "ranks") else {}
 
 
 def _run_all(layout, family_kind):
@@ -172,6 +179,15 @@ def check_table(name, table):
         assert not (keep & excludes & ~reject).any(), name
     if name in REJECT_IMPLIES_EXCLUDE:
         assert not (keep & reject & ~excludes).any(), name
+    if name in DUAL_RELATIVE_EFFECT:
+        rel = table["relative_effect"].to_numpy()
+        rlo = table["relative_effect_lower"].to_numpy()
+        rhi = table["relative_effect_upper"].to_numpy()
+        assert np.all((0 <= rlo) & (rlo <= rel) & (rel <= rhi) & (rhi <= 1)), name
+        r_excl = (rlo > 0.5) | (rhi < 0.5)
+        near = (np.abs(table["p_adjusted"].to_numpy() - ALPHA) <= 1e-7) | (
+            np.minimum(np.abs(rlo - 0.5), np.abs(rhi - 0.5)) <= 1e-9)
+        assert not (~near & (reject != r_excl)).any(), name
 
 
 def check_orderings(tables):
