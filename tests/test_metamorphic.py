@@ -72,7 +72,8 @@ def _kind(name):
 
 def _run(name, layout, kind=None):
     kind = kind or _kind(name)
-    options = dict(resamples=B, seed=SEED) if CATALOGUE[name].route == "resample" else {}
+    options = dict(resamples=B, seed=SEED) if CATALOGUE[name].route in ("resample",
+                                                                        "ranks") else {}
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         return run_procedure(name, layout, _family(layout.labels, kind), **options)
@@ -94,8 +95,10 @@ def _same(base, other, scale=1.0, name=""):
 
 PROCEDURES = list(CATALOGUE)
 DESIGNS = ["balanced", "unbalanced"]
-CLOSED_FORM = [p for p in PROCEDURES if CATALOGUE[p].route != "resample"]
-RESAMPLING = [p for p in PROCEDURES if CATALOGUE[p].route == "resample"]
+#: brunner-munzel-maxt is a rank procedure that always resamples
+RESAMPLING = [p for p in PROCEDURES
+              if CATALOGUE[p].route == "resample" or p == "brunner-munzel-maxt"]
+CLOSED_FORM = [p for p in PROCEDURES if p not in RESAMPLING]
 
 
 @pytest.fixture(scope="module")
