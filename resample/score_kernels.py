@@ -201,28 +201,50 @@ def _pair_stats(acc_a, acc_q2, acc_qx, n, mode, pa, pb, fixed_v, se2_floor, sign
         ustat[j] = abs(t) if two_sided else sign * t
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _fy_step(lab, i, state, inc):
+    """Fisher-Yates step at position i (j uniform on 0..i); returns the state."""
+    bound = np.uint64(i + 1)
+    old = state
+    state = old * _MULT + inc
+    prod = _pcg_out(old) * bound
+    low = prod & _M32
+    if low < bound:
+        thresh = (_TWO32 - bound) % bound
+        while low < thresh:
+            old = state
+            state = old * _MULT + inc
+            prod = _pcg_out(old) * bound
+            low = prod & _M32
+    j = np.int64(prod >> _S32)
+    lv = lab[j]
+    lab[j] = lab[i]
+    lab[i] = lv
+    return state
+
+
 @njit(cache=True, nogil=True)
-def placement_point_chunk(block_ptr, lab0, n, mode, pa, pb, own_ptr, own_col, part_ptr,
-                          part_col, fixed_v, se2_floor, sign, two_sided, thr, order,
-                          stepdown, size, rng_state):
+def placement_point_chunk(block_ptr, lab0, n, mode, pa, pb, fixed_v, se2_floor, sign,
+                          two_sided, thr, order, stepdown, size, rng_state):
     """Run ``size`` permutations of pairwise U-statistics on point data.
 
     ``lab0[p]`` is the group of the observation at sorted position p;
     ``block_ptr`` bounds the tie blocks of the sorted values.  The
     Fisher-Yates pass runs from the top position down, and position p is
-    final once its step is done, so the scan over the blocks (from the
-    largest values down) is fused with the shuffle.  An observation of
-    group c in a block with ``tie[g]`` members of group g and ``cnt[g]``
-    above it has G[g] = 2 cnt[g] + tie[g] - n_g.
+    final once its step is done, so the scan (from the largest values down)
+    is fused with the shuffle.  An observation of group c in a block with
+    ``tie[g]`` members of group g and ``cnt[g]`` above it has
+    G[g] = 2 cnt[g] + tie[g] - n_g; each observation adds its group's
+    counters into its group's row (a fixed loop over the k groups, which
+    branch predictors handle far better than a per-group list).
 
-    Only what the family needs is accumulated: for group c, A[c, g] for the
-    groups g in ``own_col[own_ptr[c]:own_ptr[c+1]]`` (each pair once, the
-    other orientation by antisymmetry), and, for Brunner-Munzel, Q2[c, g]
-    for the partners ``part_col[part_ptr[c]:part_ptr[c+1]]``.  Mantel's
-    variance needs no per-observation squares on point data: the pooled
-    sum of h_a^2 is (n^3 - sum_b (t_ib + t_lb)^3) / 3 over the tie blocks b,
-    from T3[c] = sum_b t_cb^3 and M[c, g] = sum_b t_cb^2 t_gb, which only tied
-    blocks change.
+    Untied data (every block one value) take a loop without blocks:
+    A[c, g] = 2 P1[c, g] - n_c n_g and Q2[c, g] = 4 P2[c, g] - 4 n_g P1[c, g]
+    + n_c n_g^2 (c != g) from P1 = sum cnt_g and P2 = sum cnt_g^2 over c.
+    Mantel's variance needs no per-observation squares on point data: the
+    pooled sum of h_a^2 is (n^3 - sum_b (t_ib + t_lb)^3) / 3 over the tie
+    blocks b, from T3[c] = sum_b t_cb^3 and M[c, g] = sum_b t_cb^2 t_gb,
+    which only tied blocks change.
     """
     lab = lab0.copy()
     k = n.size
@@ -230,6 +252,7 @@ def placement_point_chunk(block_ptr, lab0, n, mode, pa, pb, own_ptr, own_col, pa
     nb = block_ptr.size - 1
     big_n = lab.size
     bm = mode == 2
+    untied = nb == big_n
     maxima = np.empty(size)
     hits_marginal = np.zeros(m, dtype=np.int64)
     hits_stepdown = np.zeros(m, dtype=np.int64)
@@ -251,77 +274,73 @@ def placement_point_chunk(block_ptr, lab0, n, mode, pa, pb, own_ptr, own_col, pa
                 acc_a[c, g] = 0.0
                 acc_q2[c, g] = 0.0
                 mx[c, g] = 0.0
-        hi = big_n
-        for s_ in range(nb):
-            # blocks from the top; while loops (a range with a negative step
-            # costs a division per block, which singleton blocks cannot amortise)
-            lo = block_ptr[nb - 1 - s_]
-            i = hi - 1
-            while i >= lo and i > 0:
-                bound = np.uint64(i + 1)
-                old = state
-                state = old * _MULT + inc
-                prod = _pcg_out(old) * bound
-                low = prod & _M32
-                if low < bound:
-                    thresh = (_TWO32 - bound) % bound
-                    while low < thresh:
-                        old = state
-                        state = old * _MULT + inc
-                        prod = _pcg_out(old) * bound
-                        low = prod & _M32
-                j = np.int64(prod >> _S32)
-                lv = lab[j]
-                lab[j] = lab[i]
-                lab[i] = lv
-                i -= 1
-            if hi - lo == 1:
-                c = np.int64(lab[lo])
-                for e in range(own_ptr[c], own_ptr[c + 1]):
-                    g = own_col[e]
-                    acc_a[c, g] += 2.0 * cnt[g] - nf[g]
+        if untied:
+            i = big_n - 1
+            while i >= 0:
+                if i > 0:
+                    state = _fy_step(lab, i, state, inc)
+                c = np.int64(lab[i])
                 if bm:
-                    for e in range(part_ptr[c], part_ptr[c + 1]):
-                        g = part_col[e]
-                        gv1 = 2.0 * cnt[g] - nf[g]
-                        acc_q2[c, g] += gv1 * gv1
-                cnt[c] += 1.0
-                hi = lo
-                continue
-            npres = 0
-            for p in range(lo, hi):
-                c = np.int64(lab[p])
-                if tie[c] == 0.0:
-                    present[npres] = c
-                    npres += 1
-                tie[c] += 1.0
-            for q in range(npres):
-                c = present[q]
-                w = tie[c]
-                for e in range(own_ptr[c], own_ptr[c + 1]):
-                    g = own_col[e]
-                    acc_a[c, g] += w * (2.0 * cnt[g] + tie[g] - nf[g])
-                if bm:
-                    for e in range(part_ptr[c], part_ptr[c + 1]):
-                        g = part_col[e]
-                        gv2 = 2.0 * cnt[g] + tie[g] - nf[g]
-                        acc_q2[c, g] += w * gv2 * gv2
+                    for g in range(k):
+                        cg = cnt[g]
+                        acc_a[c, g] += cg
+                        acc_q2[c, g] += cg * cg
                 else:
-                    t3[c] += w * w * w - w
-                    for r in range(npres):
-                        g = present[r]
-                        if g != c:
-                            mx[c, g] += w * w * tie[g]
-            for q in range(npres):
-                c = present[q]
-                cnt[c] += tie[c]
-                tie[c] = 0.0
-            hi = lo
-        # the other orientation of each accumulated pair, by antisymmetry
-        for c in range(k):
-            for e in range(own_ptr[c], own_ptr[c + 1]):
-                g = own_col[e]
-                acc_a[g, c] = -acc_a[c, g]
+                    for g in range(k):
+                        acc_a[c, g] += cnt[g]
+                cnt[c] += 1.0
+                i -= 1
+            for c in range(k):
+                for g in range(k):
+                    p1 = acc_a[c, g]
+                    acc_a[c, g] = 2.0 * p1 - nf[c] * nf[g]
+                    if bm:
+                        acc_q2[c, g] = (4.0 * acc_q2[c, g] - 4.0 * nf[g] * p1
+                                        + nf[c] * nf[g] * nf[g])
+        else:
+            hi = big_n
+            for s_ in range(nb):
+                lo = block_ptr[nb - 1 - s_]
+                i = hi - 1
+                while i >= lo and i > 0:
+                    state = _fy_step(lab, i, state, inc)
+                    i -= 1
+                if hi - lo == 1:
+                    c = np.int64(lab[lo])
+                    for g in range(k):
+                        gv1 = 2.0 * cnt[g] - nf[g]
+                        acc_a[c, g] += gv1
+                        if bm:
+                            acc_q2[c, g] += gv1 * gv1
+                    cnt[c] += 1.0
+                    hi = lo
+                    continue
+                npres = 0
+                for p in range(lo, hi):
+                    c = np.int64(lab[p])
+                    if tie[c] == 0.0:
+                        present[npres] = c
+                        npres += 1
+                    tie[c] += 1.0
+                for q in range(npres):
+                    c = present[q]
+                    w = tie[c]
+                    for g in range(k):
+                        gv2 = 2.0 * cnt[g] + tie[g] - nf[g]
+                        acc_a[c, g] += w * gv2
+                        if bm:
+                            acc_q2[c, g] += w * gv2 * gv2
+                    if not bm:
+                        t3[c] += w * w * w - w
+                        for r in range(npres):
+                            g = present[r]
+                            if g != c:
+                                mx[c, g] += w * w * tie[g]
+                for q in range(npres):
+                    c = present[q]
+                    cnt[c] += tie[c]
+                    tie[c] = 0.0
+                hi = lo
         for j in range(m):
             i = pa[j]
             l = pb[j]

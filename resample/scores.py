@@ -250,26 +250,13 @@ def placement_problem(placements: Placements, codes, k: int, pairs, mode: str, u
             np.ascontiguousarray(thr, dtype=np.float64), order)
     if placements.kind == "point":
         lab = np.ascontiguousarray(codes[placements.order].astype(dtype))
-        # each pair accumulated once, by its group_a; partners both ways (Q2)
-        own = _csr(pairs[:, 0], pairs[:, 1], k)
-        part = _csr(np.r_[pairs[:, 0], pairs[:, 1]], np.r_[pairs[:, 1], pairs[:, 0]], k)
-        head = tail[:4] + own + part + tail[4:]
         return engine.ResamplingProblem("placement_point_chunk",
-                                        (placements.block_ptr, lab) + head,
+                                        (placements.block_ptr, lab) + tail,
                                         placements.n_obs, m)
     lab = np.ascontiguousarray(codes.astype(dtype))
     return engine.ResamplingProblem("placement_interval_chunk",
                                     (placements.ev_elem, placements.ev_hi, lab) + tail,
                                     2 * placements.n_obs * max(k, 1), m)
-
-
-def _csr(rows, cols, k):
-    """Distinct (row -> cols) lists in compressed sparse rows."""
-    key = np.unique(np.asarray(rows, dtype=np.int64) * k + np.asarray(cols, dtype=np.int64))
-    r, c = key // k, key % k
-    ptr = np.zeros(k + 1, dtype=np.int64)
-    np.cumsum(np.bincount(r, minlength=k), out=ptr[1:])
-    return ptr, np.ascontiguousarray(c, dtype=np.int64)
 
 
 def score_sum_problem(scores, codes, k: int, weights, vm, u, thr,

@@ -182,8 +182,11 @@ def _assignments(sizes):
             yield codes
 
 
-def test_full_enumeration_of_a_tiny_design_with_ties():
-    values = np.array([1.0, 2.0, 2.0, 3.0, 5.0, 5.0, 6.0, 7.0])    # ties on purpose
+@pytest.mark.parametrize("values", [[1.0, 2.0, 2.0, 3.0, 5.0, 5.0, 6.0, 7.0],   # ties
+                                    [1.0, 2.5, 2.0, 3.0, 5.0, 4.0, 6.0, 7.0]])  # none
+def test_full_enumeration_of_a_tiny_design(values):
+    # the compiled kernel has one loop for tied values and one for untied values
+    values = np.asarray(values)
     sizes = (3, 3, 2)
     obs = np.repeat([0, 1, 2], sizes)
     lay = Layout(values=values, codes=obs, labels=("a", "b", "c"))
@@ -229,8 +232,10 @@ def _bm_stat(x, y):
     return nx * ny * (p - 0.5) / np.sqrt(max(d, 0.25))
 
 
-def test_brunner_munzel_exact_and_permutation_by_enumeration():
-    values = np.array([0.3, 1.1, 1.1, 2.0, 4.0, 2.5, 3.1, 9.0])
+@pytest.mark.parametrize("values", [[0.3, 1.1, 1.1, 2.0, 4.0, 2.5, 3.1, 9.0],
+                                    [0.3, 1.1, 1.2, 2.0, 4.0, 2.5, 3.1, 9.0]])
+def test_brunner_munzel_exact_and_permutation_by_enumeration(values):
+    values = np.asarray(values)
     sizes = (3, 3, 2)
     obs = np.repeat([0, 1, 2], sizes)
     lay = Layout(values=values, codes=obs, labels=("a", "b", "c"))

@@ -21,7 +21,7 @@ from ..core.families import Family
 from ..core.layout import Layout
 from ..core.table import comparisons_table
 from ._shared import _check_family, _check_layout
-from .rank_shift import hodges_lehmann, shift_interval, shift_order_statistic, rank_c
+from .rank_shift import rank_c, shift_order_statistic
 
 __all__ = ["EXACT_MAX", "RANK_METHODS", "RankSetup", "rank_setup", "rank_options",
            "reference_distribution", "ReferenceDistribution", "shifts", "rank_table"]
@@ -197,14 +197,23 @@ def shifts(setup: RankSetup, crit, alternative="two-sided"):
     est, lo, hi, se = (np.empty(m) for _ in range(4))
     crit = np.broadcast_to(np.asarray(crit, dtype=np.float64), (m,))
     for j, (x, y) in enumerate(pair_values(setup)):
-        est[j] = hodges_lehmann(x, y)
-        lo[j], hi[j] = shift_interval(x, y, crit[j], alternative)
+        nm = x.size * y.size
+        c = rank_c(x.size, y.size, crit[j]) if np.isfinite(crit[j]) else 0
         c95 = rank_c(x.size, y.size, _Z975)
+        # every order statistic the pair needs, in one selection
+        want = [(nm + 1) // 2, nm // 2 + 1]
+        if c >= 1:
+            want += [c, nm + 1 - c]
         if c95 >= 1:
-            a, b = shift_order_statistic(x, y, [c95, x.size * y.size + 1 - c95])
-            se[j] = (b - a) / (2.0 * _Z975)
-        else:
-            se[j] = np.nan
+            want += [c95, nm + 1 - c95]
+        got = dict(zip(want, shift_order_statistic(x, y, want)))
+        est[j] = 0.5 * (got[(nm + 1) // 2] + got[nm // 2 + 1])
+        lo[j], hi[j] = (got[c], got[nm + 1 - c]) if c >= 1 else (-np.inf, np.inf)
+        if alternative == "greater":
+            hi[j] = np.inf
+        elif alternative == "less":
+            lo[j] = -np.inf
+        se[j] = (got[nm + 1 - c95] - got[c95]) / (2.0 * _Z975) if c95 >= 1 else np.nan
     return est, lo, hi, se
 
 

@@ -153,11 +153,12 @@ def _pair_stats_for(setup, mode):
     """codes (A, N) -> each pair's statistic (A, m), by the sign matrix (small N)."""
     from ..resample.scores import pair_statistics
     x = setup.layout.values
-    sgn = np.sign(x[None, :] - x[:, None])             # S[a, b] = sign(x_b - x_a)
     k = setup.layout.k
     pa, pb = setup.pairs[:, 0], setup.pairs[:, 1]
 
     def fn(codes):
+        # only the exact enumeration calls this (N is tiny there)
+        sgn = np.sign(x[None, :] - x[:, None])         # S[a, b] = sign(x_b - x_a)
         out = []
         for cb in _codes_batches(np.atleast_2d(codes)):
             lab = np.eye(k)[cb]                        # (A, N, k)
