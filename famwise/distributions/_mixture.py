@@ -375,9 +375,16 @@ def _outer_one(cu, cl, du, dl, meta, q, nu, upper, gx, gw, tl, tr, psis, ratio, 
 
 
 @njit(cache=True, nogil=True)
-def _outer(cu, cl, du, dl, meta, q, nu, gx, gw, sf, cdf, pdf, want_d, ratio=2.0,
-           hmul=1.0, m=24):
-    """Fill sf, cdf (and pdf = d cdf / dq if want_d) for arrays q, nu (nu may be inf)."""
+def _outer(cu, cl, du, dl, meta, q, nu, gx, gw, sf, cdf, pdf, want_d, ratio, hmul, m):
+    """Fill sf, cdf (and pdf = d cdf / dq if want_d) for arrays q, nu (nu may be inf).
+
+    ``ratio`` (float) is the growth of the panels out from the peak, ``hmul``
+    (float) scales the first panel's width, ``m`` (int) is the number of
+    points of the scan for the peak.  No argument has a default: numba
+    dispatches a call that omits one through its Python-level path (a
+    ``typeof`` on every argument, about half a millisecond), so callers pass
+    them all, with the types of :data:`_OUTER_RULE`.
+    """
     psis = np.empty(m)
     nu_prev = np.nan
     tl = tr = c0 = 0.0
@@ -418,6 +425,10 @@ def _outer(cu, cl, du, dl, meta, q, nu, gx, gw, sf, cdf, pdf, want_d, ratio=2.0,
             pdf[i] = max(-p * dl_dq if upper else p * dl_dq, 0.0)
 
 
+#: (ratio, hmul, m) of the outer rule, typed as _outer was compiled for.
+_OUTER_RULE = (2.0, 1.0, 24)
+
+
 def _evaluate(table, q, nu, density=False):
     """sf and cdf (and the density if asked) of the family ``table`` at flattened q, nu.
 
@@ -430,7 +441,7 @@ def _evaluate(table, q, nu, density=False):
     cdf = np.empty(q.shape)
     pdf = np.empty(q.shape if density else (0,))
     _outer(table.coef_u, table.coef_l, table.dcoef_u, table.dcoef_l, table.meta, q, nu,
-           _GL_OUTER_X, _GL_OUTER_W, sf, cdf, pdf, density)
+           _GL_OUTER_X, _GL_OUTER_W, sf, cdf, pdf, bool(density), *_OUTER_RULE)
     return (sf, cdf, pdf) if density else (sf, cdf)
 
 
