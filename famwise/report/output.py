@@ -2,7 +2,9 @@
 
 Each file is written to a temporary file in the destination folder and then
 renamed over its final name, so an interrupted run never leaves a half-written
-file.  A folder that already holds any of the files is refused unless
+file.  The files get the permissions a plain ``open(path, "w")`` would give
+them (0666 less the user's umask, so 0644 under the usual 022), not the
+owner-only 0600 of the temporary file.  A folder that already holds any of the files is refused unless
 ``force=True``.  CSV cells that a spreadsheet would run as a formula (text
 starting with ``=``, ``+``, ``-``, ``@``, tab or carriage return, other than
 plain numbers) are prefixed with a single quote.
@@ -63,6 +65,31 @@ def prepare_folder(folder: str, names: Iterable[str], force: bool = False) -> st
     return folder
 
 
+def _umask() -> int:
+    """The process's file-creation mask, read without changing it where possible."""
+    try:
+        with open("/proc/self/status", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("Umask:"):
+                    return int(line.split()[1], 8)
+    except (OSError, ValueError):
+        pass
+    mask = os.umask(0o022)          # elsewhere: read it by setting it, then put it back
+    os.umask(mask)
+    return mask
+
+
+def _temporary(folder: str, suffix: str) -> tuple[int, str]:
+    """``mkstemp`` in ``folder``, with the mode an ordinary new file would get."""
+    fd, tmp = tempfile.mkstemp(prefix=".famwise-", suffix=suffix, dir=folder)
+    if hasattr(os, "fchmod"):
+        try:
+            os.fchmod(fd, 0o666 & ~_umask())
+        except OSError:
+            pass
+    return fd, tmp
+
+
 def write_atomic(path: str, text: str | bytes) -> None:
     """Write ``text`` to ``path`` through a temporary file and a rename.
 
@@ -74,7 +101,7 @@ def write_atomic(path: str, text: str | bytes) -> None:
     mode = "wb" if isinstance(text, bytes) else "w"
     tmp = None
     try:
-        fd, tmp = tempfile.mkstemp(prefix=".famwise-", suffix=".tmp", dir=folder)
+        fd, tmp = _temporary(folder, ".tmp")
         with os.fdopen(fd, mode, **({} if mode == "wb" else {"encoding": "utf-8",
                                                              "newline": ""})) as fh:
             fh.write(text)
@@ -118,7 +145,7 @@ def write_files(folder: str, texts: Mapping[str, str | bytes]) -> list[str]:
             path = os.path.join(folder, name)
             mode = "wb" if isinstance(text, bytes) else "w"
             try:
-                fd, tmp = tempfile.mkstemp(prefix=".famwise-", suffix=".tmp", dir=folder)
+                fd, tmp = _temporary(folder, ".tmp")
             except OSError as exc:
                 raise FamwiseInputError(
                     f"cannot write {path!r}: {exc.strerror or exc}") from None
