@@ -138,8 +138,16 @@ def calibrate_layout(layout: Layout, family: Family, *, alpha: float = 0.05,
     Runs on the stacked-replicate engine (:mod:`famwise.diagnostics.simulate`):
     the checks, the route and every procedure evaluated on all replicates at
     once; the route's quick calibration, when the policy asks for it, once at
-    the observed design.
+    the observed design.  A layout with blocks or covariates is calibrated
+    under its model (:func:`famwise.diagnostics.model_calibrate.calibrate_model`).
     """
+    if layout.design is not None:
+        from .model_calibrate import calibrate_model
+        rows, routes, design = calibrate_model(
+            layout, family, alpha=alpha, replicates=replicates, shape=shape, seed=seed,
+            procedures=procedures, pipeline=pipeline, policy=policy, row=_row)
+        return Calibration(alpha, family.m, shape, replicates, int(seed), design,
+                           pd.DataFrame(rows), routes)
     from .simulate import route_table, simulate
     policy = policy or Policy()
     if replicates < 100:

@@ -92,7 +92,11 @@ def spread_unequal(findings: Findings) -> list[str]:
 def _contrast_classical(layout: Layout, family: Family, alpha: float) -> tuple[str, str]:
     """Šidák or Scheffé for a contrast family, whichever gives shorter intervals."""
     m, k = family.m, layout.k
-    df = layout.stats.df_error
+    if layout.design is not None:
+        from ..model import fit_model
+        df = fit_model(layout).df
+    else:
+        df = layout.stats.df_error
     sidak = stats.t.ppf(1 - (1 - (1 - alpha) ** (1 / m)) / 2, df)
     scheffe = np.sqrt((k - 1) * stats.f.ppf(1 - alpha, k - 1, df))
     if sidak <= scheffe:
@@ -174,6 +178,13 @@ def choose(findings: Findings, family: Family, layout: Layout, policy: Policy | 
     small = findings.get("small-groups")
     if small.verdict != "ok":
         warnings.append(small.sentence)
+    if layout.design is not None:
+        from .model_route import choose_model
+        parts = choose_model(findings, family, layout, policy, procedure, alpha, poor, unequal,
+                             warnings, _contrast_classical)
+        return Route(parts["route"], parts["procedure"], parts["chosen_by"], parts["reasons"],
+                     tuple(Alternative(p, w) for p, w in parts["alternatives"]),
+                     parts["against"], parts["warnings"], None, parts["crosscheck"])
     if procedure != "auto":
         info = check_procedure(procedure)
         against = []

@@ -45,8 +45,30 @@ class Inspection:
     findings: Findings
 
 
-def load_data(data, response=None, group=None, **read_options) -> Intake:
-    """Return an :class:`Intake` from a path, DataFrame, Intake or Layout."""
+def load_data(data, response=None, group=None, *, block=None, covariates=None,
+              **read_options) -> Intake:
+    """Return an :class:`Intake` from a path, DataFrame, Intake or Layout.
+
+    ``block`` and ``covariates`` name columns of a file or DataFrame; a
+    Layout or Intake carries its own (``Layout.with_design``).  With either,
+    the model is fitted here, so a design that cannot be analysed (not
+    connected, a block with one plot, a constant or collinear covariate)
+    fails before any check runs.
+    """
+    if isinstance(data, (Intake, Layout)) and (block is not None or covariates is not None):
+        raise FamwiseInputError(
+            "block= and covariates= name columns of a file or DataFrame; a Layout carries "
+            "its own blocks and covariates (build it with Layout.with_design(blocks=..., "
+            "covariates=...))")
+    intake = _load(data, response, group, block=block, covariates=covariates,
+                   **read_options)
+    if intake.layout.design is not None:
+        from .model import fit_model
+        fit_model(intake.layout)
+    return intake
+
+
+def _load(data, response, group, **read_options) -> Intake:
     if isinstance(data, Intake):
         return data
     if isinstance(data, Layout):
@@ -74,19 +96,36 @@ def _seed(seed):
     return int(seed)
 
 
-def inspect(data, response=None, group=None, *, policy=None, **read_options) -> Inspection:
-    """Read ``data``, account for every row, summarise the groups and run the checks."""
-    intake = load_data(data, response, group, **read_options)
+def inspect(data, response=None, group=None, *, block=None, covariates=None, policy=None,
+            **read_options) -> Inspection:
+    """Read ``data``, account for every row, summarise the groups and run the checks.
+
+    With ``block=`` or ``covariates=`` the checks run on the residuals of the
+    additive model and ``.groups`` carries the adjusted means.
+    """
+    intake = load_data(data, response, group, block=block, covariates=covariates,
+                       **read_options)
     pol = _policy(policy)
-    return Inspection(intake.layout, intake.ledger, group_summary(intake.layout),
+    return Inspection(intake.layout, intake.ledger, _groups(intake.layout),
                       run_checks(intake.layout, pol))
+
+
+def _groups(layout: Layout) -> pd.DataFrame:
+    """The group summary, with the model's adjusted means and SEs under a design."""
+    groups = group_summary(layout)
+    if layout.design is not None:
+        from .model import fit_model
+        fit = fit_model(layout)
+        groups = groups.assign(adjusted_mean=fit.adjusted_mean, adjusted_se=fit.adjusted_se)
+    return groups
 
 
 def compare(data, response=None, group=None, *, family="all-pairs", reference=None,
             contrasts=None, procedure="auto", alpha=0.05, alternative="two-sided",
             margin=None, resamples=9999, seed=None, n_jobs=1, backend="threads",
             scheduler=None, policy=None, crosscheck=True, progress=None,
-            calibrate=False, command=None, **read_options) -> Comparison:
+            calibrate=False, command=None, block=None, covariates=None,
+            **read_options) -> Comparison:
     """Compare groups: check the data, choose a procedure, run it and cross-check it.
 
     Parameters
@@ -127,6 +166,14 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
         Also estimate every candidate's familywise error, and the automatic
         pipeline's, at the observed design (an int sets the replicates;
         ``True`` means 2,000); see :func:`calibrate`.
+    block : str or list of str, optional
+        The blocking column (replicate), or two columns (rows and columns of
+        a Latin square).  The groups are then compared under the additive
+        model ``response = group + block(s) + covariate(s)``
+        (:func:`famwise.model.fit_model`): adjusted means, the model's error
+        mean square and df, checks on its residuals.
+    covariates : str or list of str, optional
+        Numeric covariate columns (baseline measurements) for the same model.
     **read_options
         Passed to :func:`famwise.intake.read` (wide, columns, sheet, decimal,
         encoding, order, merge_spellings, delimiter).
@@ -150,7 +197,8 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
             f"use a two-sided test for {family!r}")
     pol = _policy(policy)
     seed = _seed(seed)
-    intake = load_data(data, response, group, **read_options)
+    intake = load_data(data, response, group, block=block, covariates=covariates,
+                       **read_options)
     layout, ledger = intake.layout, intake.ledger
     fam = build_family(layout.labels, family, reference, contrasts)
     findings = run_checks(layout, pol)
@@ -166,17 +214,18 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
         cc_resampling = dict(resampling_options)
         if cc_resampling["resamples"] == "auto":
             cc_resampling["resamples"] = 9999
-        statistic = "pooled" if CATALOGUE[route.procedure].route == "classical" else None
+        statistic = ("pooled" if CATALOGUE[route.procedure].route == "classical"
+                     and layout.design is None else None)
         check = run_crosscheck(table, route.crosscheck, layout, fam, alpha=alpha,
                                alternative=alternative, resampling=cc_resampling,
                                statistic=statistic)
     if margin is not None:
         table = table.assign(practical=classify(table["ci_lower"], table["ci_upper"], margin))
-    groups = group_summary(layout)
+    groups = _groups(layout)
     if fam.kind == "all-pairs":
         from .procedures.letters import compact_letters
-        groups = groups.assign(letters=compact_letters(groups["mean"].to_numpy(), table,
-                                                       list(layout.labels)))
+        means = groups["adjusted_mean" if layout.design is not None else "mean"].to_numpy()
+        groups = groups.assign(letters=compact_letters(means, table, list(layout.labels)))
     calibration = None
     if calibrate:
         from .diagnostics.calibrate import calibrate_layout
@@ -186,7 +235,7 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
     from .procedures.omnibus import omnibus_test
     omnibus = omnibus_test(route.route, layout)
     record = _record(intake, data, fam, alpha, margin, findings, pol, route, check, table,
-                     command, response, group, seed)
+                     command, response, group, seed, block, covariates)
     record = dataclasses.replace(record, omnibus=omnibus.to_dict())
     return Comparison(groups=groups, comparisons=table, decision=record, crosscheck=check,
                       ledger=ledger, findings=findings, layout=layout, family=fam,
@@ -195,7 +244,8 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
 
 def calibrate(data, response=None, group=None, *, family="all-pairs", reference=None,
               contrasts=None, alpha=0.05, replicates=2000, shape="normal", seed=None,
-              procedures=None, pipeline=True, policy=None, **read_options):
+              procedures=None, pipeline=True, policy=None, block=None, covariates=None,
+              **read_options):
     """Estimate familywise error rates under the complete null at the observed design.
 
     For every candidate procedure of the family (or those named in
@@ -215,7 +265,8 @@ def calibrate(data, response=None, group=None, *, family="all-pairs", reference=
     alpha = check_alpha(alpha)
     if procedures is not None:
         procedures = [check_procedure(p).name for p in procedures]
-    intake = load_data(data, response, group, **read_options)
+    intake = load_data(data, response, group, block=block, covariates=covariates,
+                       **read_options)
     fam = build_family(intake.layout.labels, family, reference, contrasts)
     return calibrate_layout(intake.layout, fam, alpha=alpha, replicates=int(replicates),
                             shape=shape, seed=_seed(seed), procedures=procedures,
@@ -233,7 +284,8 @@ def _run(name, layout, fam, alpha, alternative, resampling_options) -> pd.DataFr
 
 
 def _record(intake, data, fam: Family, alpha, margin, findings, pol, route: Route, check,
-            table, command, response, group, seed) -> DecisionRecord:
+            table, command, response, group, seed, block=None, covariates=None
+            ) -> DecisionRecord:
     led = intake.ledger
     is_file = isinstance(data, (str, os.PathLike))
     resampling = table.attrs.get("resampling")
@@ -242,7 +294,12 @@ def _record(intake, data, fam: Family, alpha, margin, findings, pol, route: Rout
                           unsettled=[c for c, u in zip(table["comparison"], table["unsettled"])
                                      if u])
     if command is None:
-        command = _reproduce(data, response, group, fam, alpha, route, resampling, seed)
+        command = _reproduce(data, response, group, fam, alpha, route, resampling, seed,
+                             block, covariates)
+    model = None
+    if intake.layout.design is not None:
+        from .diagnostics.model_route import model_summary
+        model = model_summary(intake.layout)
     return DecisionRecord(
         input={"source": led.source, "sha256": file_sha256(data) if is_file else None,
                "response": intake.layout.response, "group": intake.layout.group,
@@ -253,16 +310,25 @@ def _record(intake, data, fam: Family, alpha, margin, findings, pol, route: Rout
                 "comparisons": list(fam.names)},
         alpha=alpha, margin=margin, checks=findings.to_records(), policy=pol.to_dict(),
         route=route.to_dict(), crosscheck=check.to_dict() if check is not None else None,
-        resampling=resampling, environment=environment(), command=command)
+        resampling=resampling, environment=environment(), command=command, model=model)
 
 
-def _reproduce(data, response, group, fam, alpha, route, resampling, seed) -> str:
+def _columns_option(value) -> str:
+    return value if isinstance(value, str) else ",".join(map(str, value))
+
+
+def _reproduce(data, response, group, fam, alpha, route, resampling, seed, block=None,
+               covariates=None) -> str:
     source = os.fspath(data) if isinstance(data, (str, os.PathLike)) else "<DataFrame>"
     parts = ["famwise", "compare", source]
     if response:
         parts += ["--response", str(response)]
     if group:
         parts += ["--group", str(group)]
+    if block:
+        parts += ["--block", _columns_option(block)]
+    if covariates:
+        parts += ["--covariate", _columns_option(covariates)]
     parts += ["--family", fam.kind]
     if fam.reference is not None:
         parts += ["--reference", fam.labels[fam.reference]]

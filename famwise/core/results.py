@@ -28,6 +28,11 @@ always present, ``null`` where it does not apply:
                  figures are null when the test is undefined for the data)
 ``environment``  famwise, python, numpy, scipy, pandas, numba, platform
 ``command``      the command line or call that reproduces the run
+``model``        with blocks or covariates: description, terms [{name, kind,
+                 df}], df_residual, mean_square_error, group_f, group_df,
+                 group_p, efficiency (relative efficiency of the blocking and
+                 its parts, or null), efficiency_sentence, cv_percent,
+                 means_correlated, notes; null for a one-way layout
 """
 
 from __future__ import annotations
@@ -76,6 +81,7 @@ class DecisionRecord:
     environment: dict
     command: str
     omnibus: dict | None = None
+    model: dict | None = None
     schema: str = SCHEMA
 
     def to_dict(self) -> dict:
@@ -106,6 +112,12 @@ class DecisionRecord:
                 "contrasts": f"{fam['m']} contrast{'s' if fam['m'] > 1 else ''}"}[fam["kind"]]
         text.append(f"The family was {what} ({fam['m']} comparison"
                     f"{'s' if fam['m'] > 1 else ''}) at a familywise level of {self.alpha:g}.")
+        if self.model:
+            mod = self.model
+            text.append(f"The groups were compared under the additive model "
+                        f"{mod['description']}."
+                        + (f" {mod['efficiency_sentence']}" if mod.get("efficiency_sentence")
+                           else ""))
         flagged = [c["sentence"] for c in self.checks if c["verdict"] != "ok"]
         text.append("The checks found: " + " ".join(flagged) if flagged
                     else "The checks raised no concern.")

@@ -31,6 +31,9 @@ REASONS = {
     "text": "text where a number was expected",
     "infinite": "infinite value",
     "empty-cell": "empty cell (wide layout)",
+    "missing-block": "missing block label",
+    "missing-covariate": "missing covariate value",
+    "covariate-text": "text where a covariate number was expected",
 }
 
 

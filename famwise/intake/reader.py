@@ -39,6 +39,7 @@ from ..core.errors import FamwiseInputError, did_you_mean, LabelSpellingWarning
 from ..core.layout import Layout
 from .cells import MISSING_LABELS, blank_mask, is_blank, label_codes, parse_values
 from .ledger import Dropped, Ledger
+from .model_columns import build_design, column_names, fractional_labels, model_columns
 
 __all__ = ["Intake", "read", "file_sha256", "load_table", "parse_values", "find_column", "RawTable", "TEXT_SUFFIXES", "EXCEL_SUFFIXES", "PARQUET_SUFFIXES"]
 
@@ -445,7 +446,9 @@ def read(source, response: str | None = None, group: str | None = None, *,
          decimal: str = ".", encoding: str | None = None,
          order: Sequence[str] | None = None,
          merge_spellings: bool = False,
-         exclude_rows: Sequence[int] = ()) -> Intake:
+         exclude_rows: Sequence[int] = (),
+         block: str | Sequence[str] | None = None,
+         covariates: str | Sequence[str] | None = None) -> Intake:
     """Read ``source`` and return the usable data and an account of every row.
 
     Parameters
@@ -476,6 +479,18 @@ def read(source, response: str | None = None, group: str | None = None, *,
         Source row numbers (as the ledger counts them) to set aside, for
         example after checking a flagged value against the field records.
         Each is listed in the ledger as excluded by the user.
+    block : str or list of str, optional
+        Long layout: the blocking column (replicate, block), or two columns
+        for the rows and columns of a Latin square.  Values are labels (text;
+        integer codes are labels too); a row without a block label is set
+        aside (ledger reason ``missing-block``).  A column of non-integer
+        numbers draws a :class:`~famwise.core.errors.ModelWarning` (it looks
+        like a measurement: pass it as a covariate).
+    covariates : str or list of str, optional
+        Long layout: numeric covariate columns (baseline measurements).  A
+        row without a value is set aside (``missing-covariate``), as is a
+        text cell among numbers (``covariate-text``); a column with no
+        numbers at all is refused.
 
     Returns
     -------
@@ -496,13 +511,21 @@ def read(source, response: str | None = None, group: str | None = None, *,
     src = raw.source
     excluded = _excluded_rows(exclude_rows, raw)
     notes = list(raw.notes)
+    block_names = column_names(block, "block")
+    covariate_names = column_names(covariates, "covariates")
+    design_cells = None
+    if wide and (block_names or covariate_names):
+        raise FamwiseInputError(
+            "blocks and covariates need the long layout (one row per plot with its "
+            "response, group and block columns); reshape the wide table to long")
     if wide:
         values, codes, names, rows, dropped, n_read = _wide(raw, columns, decimal, excluded)
         unit = "cell"
         response_name, group_name = "value", "column"
     else:
-        values, codes, names, rows, dropped, n_read, response_name, group_name = \
-            _long(raw, response, group, decimal, excluded)
+        values, codes, names, rows, dropped, n_read, response_name, group_name, \
+            design_cells = _long(raw, response, group, decimal, excluded, block_names,
+                                 covariate_names)
         unit = "row"
     # From here on, labels are handled once per distinct label (``names``),
     # each value carrying the code of its label.
@@ -558,16 +581,21 @@ def read(source, response: str | None = None, group: str | None = None, *,
     to_group = np.array([index.get(lab, -1) for lab in merged], dtype=np.int64)
     codes = to_group[codes] if codes.size else codes
     values = np.asarray(values, dtype=np.float64)
+    design = None
+    if design_cells is not None:
+        design, design_notes = build_design(design_cells, src)
+        notes.extend(design_notes)
     ledger = Ledger(src, unit, n_read, int(values.size), tuple(dropped), tuple(notes))
     layout = Layout(values=values, codes=codes, labels=tuple(label_order),
                     rows=np.asarray(rows, dtype=np.int64), response=response_name,
-                    group=group_name, source=src)
+                    group=group_name, source=src, design=design)
     with np.errstate(over="ignore", invalid="ignore"):
         _validate(layout, ledger)        # huge values are refused there, not warned about
     return Intake(layout, ledger)
 
 
-def _long(raw: RawTable, response, group, decimal, excluded):
+def _long(raw: RawTable, response, group, decimal, excluded, block_names=(),
+          covariate_names=()):
     src = raw.source
     r = find_column(raw.header, response, src, "response")
     g = find_column(raw.header, group, src, "group")
@@ -575,6 +603,28 @@ def _long(raw: RawTable, response, group, decimal, excluded):
         raise FamwiseInputError(
             f"response and group are the same column {raw.header[r]!r}")
     rname, gname = raw.header[r], raw.header[g]
+    b_cols, c_cols = model_columns(raw.header, src, {r: "response", g: "group"},
+                                   block_names, covariate_names, find_column)
+    b_labels, b_fractional, b_missing = [], [], []
+    for j in b_cols:
+        b_codes, b_names = label_codes(raw.body[j])
+        lab = np.array(b_names, dtype=object)[b_codes] if b_codes.size else \
+            np.empty(0, dtype=object)
+        b_labels.append(lab)
+        b_fractional.append(fractional_labels(raw.body[j], lab))
+        b_missing.append(np.array([x.lower() in MISSING_LABELS for x in b_names],
+                                  dtype=bool)[b_codes])
+    c_values, c_reasons = [], []
+    for j in c_cols:
+        v, reasons, texts = parse_values(raw.body[j], decimal)
+        if not np.any(reasons == ""):
+            shown = ", ".join(repr(t) for t in dict.fromkeys(x for x in texts if x))
+            raise FamwiseInputError(
+                f"covariate column {raw.header[j]!r} in {src!r} holds no numbers (it holds "
+                f"{shown[:80] or 'only empty cells'}); a covariate is a measurement: pass a "
+                f"text column as block= instead{_number_hint(texts, decimal)}")
+        c_values.append((v, texts))
+        c_reasons.append(reasons)
     values, reasons, texts = parse_values(raw.body[r], decimal)
     codes, names = label_codes(raw.body[g])
     usable = reasons == ""
@@ -596,6 +646,10 @@ def _long(raw: RawTable, response, group, decimal, excluded):
     if maybe.size:
         blank_row[maybe] = _blank_rows(raw.body.iloc[maybe])
     keep = usable & ~no_group & ~excl & ~blank_row
+    for miss in b_missing:
+        keep &= ~miss
+    for rs in c_reasons:
+        keep &= rs == ""
     dropped = []
     for i in np.flatnonzero(~keep).tolist():
         label = names[codes[i]]
@@ -606,10 +660,33 @@ def _long(raw: RawTable, response, group, decimal, excluded):
         elif reasons[i]:
             reason, col, text = reasons[i], rname, texts[i]
         else:
-            reason, col, text = "missing-group", gname, label
+            reason, col, text = None, "", ""
+            if no_group[i]:
+                reason, col, text = "missing-group", gname, label
+            for j, lab, miss in zip(b_cols, b_labels, b_missing):
+                if reason is not None:
+                    break
+                if miss[i]:
+                    reason, col, text = "missing-block", raw.header[j], lab[i]
+                    break
+            if reason is None:
+                for j, (v, ctexts), rs in zip(c_cols, c_values, c_reasons):
+                    if rs[i]:
+                        reason = ("missing-covariate" if rs[i] == "missing-response"
+                                  else "covariate-text")
+                        col, text = raw.header[j], ctexts[i]
+                        break
+            if reason is None:
+                reason, col, text = "missing-group", gname, label
         dropped.append(Dropped(int(raw.rows[i]), col, text, reason, label))
+    cells = None
+    if b_cols or c_cols:
+        cells = {"blocks": [(raw.header[j], lab[keep], frac)
+                            for j, lab, frac in zip(b_cols, b_labels, b_fractional)],
+                 "covariates": [(raw.header[j], v[keep])
+                                for j, (v, _) in zip(c_cols, c_values)]}
     return (values[keep], codes[keep], names, raw.rows[keep], dropped,
-            len(values), rname, gname)
+            len(values), rname, gname, cells)
 
 
 def _wide(raw: RawTable, columns, decimal, excluded):

@@ -14,8 +14,8 @@ from dataclasses import dataclass
 
 from ..core.errors import FamwiseInputError, did_you_mean
 
-__all__ = ["ProcedureInfo", "CATALOGUE", "check_procedure", "get_procedure",
-           "run_procedure"]
+__all__ = ["ProcedureInfo", "CATALOGUE", "check_procedure", "check_design", "get_procedure",
+           "model_procedures", "run_procedure"]
 
 
 @dataclass(frozen=True)
@@ -26,36 +26,41 @@ class ProcedureInfo:
     route: str            # "classical" | "unequal" | "resample" | "ranks" | "fdr"
     families: tuple[str, ...]
     purpose: str
+    # "one-way": the layout's groups alone; "model": reads famwise.model's fit
+    # (blocks and covariates), so it may run on a blocked or covariate layout
+    designs: tuple[str, ...] = ("one-way",)
 
 
 _ALL = ("all-pairs", "vs-reference", "contrasts")
 _PAIRS = ("all-pairs", "vs-reference")
+_MODEL = ("one-way", "model")
 
 CATALOGUE: dict[str, ProcedureInfo] = {p.name: p for p in [
     ProcedureInfo("lsd", "famwise.procedures.classical", "lsd", "classical", _ALL,
                   "Fisher's least significant difference, unadjusted pooled t, "
                   "used only after a significant F test; controls the familywise "
-                  "error rate only for three groups."),
+                  "error rate only for three groups.", designs=_MODEL),
     ProcedureInfo("bonferroni", "famwise.procedures.classical", "bonferroni", "classical", _ALL,
                   "Pooled t with Bonferroni's m-fold adjustment; any family, "
-                  "conservative when m is large."),
+                  "conservative when m is large.", designs=_MODEL),
     ProcedureInfo("sidak", "famwise.procedures.classical", "sidak", "classical", _ALL,
                   "Pooled t with Sidak's adjustment; slightly less conservative "
-                  "than Bonferroni."),
+                  "than Bonferroni.", designs=_MODEL),
     ProcedureInfo("holm", "famwise.procedures.classical", "holm", "classical", _ALL,
                   "Pooled t with Holm's step-down adjustment; uniformly more "
-                  "powerful than Bonferroni; no simultaneous intervals of its own."),
+                  "powerful than Bonferroni; no simultaneous intervals of its own.", designs=_MODEL),
     ProcedureInfo("tukey-kramer", "famwise.procedures.classical", "tukey_kramer", "classical",
                   ("all-pairs", "contrasts"),
                   "Studentized range for all pairwise differences, equal "
-                  "variances; exact for equal n, conservative for unequal n."),
+                  "variances; exact for equal n, conservative for unequal n.",
+                  designs=_MODEL),
     ProcedureInfo("scheffe", "famwise.procedures.classical", "scheffe", "classical", _ALL,
                   "Scheffe's F-based intervals, valid for every contrast at once; "
-                  "the choice for contrasts picked after seeing the data."),
+                  "the choice for contrasts picked after seeing the data.", designs=_MODEL),
     ProcedureInfo("dunnett", "famwise.procedures.classical", "dunnett", "classical",
                   ("vs-reference",),
                   "Each group against a reference, equal variances; one- or "
-                  "two-sided."),
+                  "two-sided.", designs=_MODEL),
     ProcedureInfo("welch", "famwise.procedures.unequal", "welch", "unequal", _ALL,
                   "Welch t with Satterthwaite df for each comparison, unadjusted."),
     ProcedureInfo("welch-holm", "famwise.procedures.unequal", "welch_holm", "unequal", _ALL,
@@ -115,7 +120,7 @@ CATALOGUE: dict[str, ProcedureInfo] = {p.name: p for p in [
                   "differ."),
     ProcedureInfo("bh", "famwise.procedures.classical", "bh", "fdr", _ALL,
                   "Benjamini-Hochberg false discovery rate (not familywise "
-                  "error) on pooled t; exploratory families."),
+                  "error) on pooled t; exploratory families.", designs=_MODEL),
 ]}
 
 
@@ -136,9 +141,32 @@ def get_procedure(name: str):
     return getattr(importlib.import_module(info.module), info.function)
 
 
+def model_procedures(route: str | None = None) -> list[str]:
+    """Names of the procedures that read the model (blocks, covariates)."""
+    return [p.name for p in CATALOGUE.values()
+            if "model" in p.designs and (route is None or p.route == route)]
+
+
+def check_design(name: str, layout) -> ProcedureInfo:
+    """Refuse a one-way procedure on a layout with blocks or covariates."""
+    info = check_procedure(name)
+    design = getattr(layout, "design", None)
+    if design is not None and "model" not in info.designs:
+        what = " and ".join(
+            ([f"the blocks {', '.join(map(repr, design.block_names))}"]
+             if design.block_names else []) +
+            ([f"the covariates {', '.join(map(repr, design.covariate_names))}"]
+             if design.covariate_names else []))
+        raise FamwiseInputError(
+            f"procedure {name!r} compares the groups as a one-way layout and would ignore "
+            f"{what}; use one that reads the model ({', '.join(model_procedures())}) or "
+            f"procedure='auto'")
+    return info
+
+
 def run_procedure(name, layout, family, *, alpha=0.05, **options):
     """Run procedure ``name`` on ``layout`` for ``family``."""
-    info = check_procedure(name)
+    info = check_design(name, layout)
     if family.kind not in info.families and not (
             family.kind == "contrasts" and family.is_pairwise and "all-pairs" in info.families):
         raise FamwiseInputError(

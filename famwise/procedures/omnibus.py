@@ -5,7 +5,10 @@ differ at all?" has one test per route:
 
 * classical (pooled variance) and ``bh``: the one-way ANOVA F test;
 * unequal-variance and resampling on means: Welch's (1951) ANOVA;
-* ranks: the Kruskal-Wallis (1952) test, tie-corrected.
+* ranks: the Kruskal-Wallis (1952) test, tie-corrected;
+* a layout with blocks or covariates, whatever the route: the F test for
+  groups under the additive model, adjusted for the blocks and covariates
+  (:meth:`famwise.model.ModelFit.group_test`).
 
 :func:`omnibus_test` returns it as an :class:`Omnibus` (test, statistic, df,
 p), which :func:`famwise.compare` exposes as ``result.omnibus`` and records
@@ -29,11 +32,13 @@ OMNIBUS = {
     "welch-anova": "Welch's (1951) ANOVA (unequal variances), for the unequal-variance "
                    "and resampling routes",
     "kruskal-wallis": "Kruskal-Wallis (1952) rank test, tie-corrected, for the rank route",
+    "model-f": "F test for groups under the additive model (adjusted for the blocks and "
+               "covariates), whatever the route",
 }
 #: Route -> omnibus test identifier (any other route: Welch's ANOVA).
 ROUTE_OMNIBUS = {"classical": "anova-f", "fdr": "anova-f", "ranks": "kruskal-wallis"}
 
-_SYMBOL = {"anova-f": "F", "welch-anova": "F", "kruskal-wallis": "H"}
+_SYMBOL = {"anova-f": "F", "welch-anova": "F", "kruskal-wallis": "H", "model-f": "F"}
 
 
 def _finite(x):
@@ -59,7 +64,8 @@ class Omnibus:
     def sentence(self) -> str:
         """One plain sentence, e.g. ``Kruskal-Wallis H = 54.69 (df 5), p = 1.5e-10.``"""
         name = {"anova-f": "One-way ANOVA", "welch-anova": "Welch's ANOVA",
-                "kruskal-wallis": "Kruskal-Wallis"}[self.test]
+                "kruskal-wallis": "Kruskal-Wallis",
+                "model-f": "The model's test for groups:"}[self.test]
         if not math.isfinite(self.p):
             return f"{name}: not defined for these data ({self.note})."
         df = ", ".join(f"{d:.4g}" for d in self.df)
@@ -75,8 +81,14 @@ class Omnibus:
 def omnibus_test(route: str, layout) -> Omnibus:
     """Return the omnibus test of ``route`` on ``layout`` (module notes)."""
     test = ROUTE_OMNIBUS.get(route, "welch-anova")
+    if getattr(layout, "design", None) is not None:
+        test = "model-f"
     nan = float("nan")
     try:
+        if test == "model-f":
+            from ..model import fit_model
+            f, df1, df2, p = fit_model(layout).group_test()
+            return Omnibus(test, f, (float(df1), float(df2)), p)
         if test == "anova-f":
             from .classical import anova_table
             a = anova_table(layout)

@@ -1,6 +1,7 @@
 """The report's figures, drawn with matplotlib and returned as inline SVG text.
 
-Three figures, each a plain function of plain data:
+Five figures, each a plain function of plain data (the last two for a
+blocked or covariate model):
 
 :func:`residual_quantile_svg`
     standardised within-group residuals against normal quantiles, with the
@@ -11,7 +12,13 @@ Three figures, each a plain function of plain data:
 :func:`interval_svg`
     one row per comparison: the estimate and its interval, the zero line, the
     band ``(-margin, margin)`` when a margin is given, and the comparisons
-    declared different drawn apart from the others.
+    declared different drawn apart from the others;
+:func:`residual_fitted_svg`
+    the model's residuals against its fitted values, plots with a large
+    studentised residual marked;
+:func:`block_effects_svg`
+    the estimated effect of every block (one panel per blocking factor),
+    centred to mean zero.
 
 No pyplot is used: each figure is a bare :class:`matplotlib.figure.Figure`
 saved through the SVG backend, so nothing opens a window or touches the
@@ -31,7 +38,8 @@ import numpy as np
 from scipy import stats
 
 __all__ = ["residual_quantile_svg", "spread_level_svg", "interval_svg", "svg_text",
-           "plotting_positions", "power_curve_svg"]
+           "plotting_positions", "power_curve_svg", "residual_fitted_svg",
+           "block_effects_svg"]
 
 #: Colours: dark ink, a muted grey for the rest, one accent, a pale band.
 INK, MUTED, ACCENT, BAND = "#1b1b1b", "#8a8a8a", "#b3432b", "#e4ecf4"
@@ -305,3 +313,79 @@ def power_curve_svg(n, series: dict, target: float, *, what: str = "power",
 def _fmt(x: float) -> str:
     from .textformat import format_number
     return format_number(x) if math.isfinite(x) else str(x)
+
+
+def residual_fitted_svg(fitted, residuals, flagged=None, response: str = "response") -> str:
+    """Return the model's residuals against its fitted values.
+
+    ``flagged`` (boolean, optional) marks plots drawn in the accent colour
+    (a large studentised residual).  A funnel means spread grows with the
+    level; a curve means the effects are not additive on this scale.
+    """
+    x = np.asarray(fitted, dtype=np.float64)
+    y = np.asarray(residuals, dtype=np.float64)
+    flag = np.zeros(x.size, bool) if flagged is None else np.asarray(flagged, dtype=bool)
+    if x.size > _MAX_POINTS:
+        keep = np.unique(np.concatenate([
+            np.linspace(0, x.size - 1, _MAX_POINTS).round().astype(int),
+            np.flatnonzero(flag)]))
+        x, y, flag = x[keep], y[keep], flag[keep]
+    resp = _clip(response, 30)
+
+    def draw(fig):
+        ax = fig.add_subplot()
+        ax.axhline(0.0, color=MUTED, lw=1, ls="--")
+        ax.plot(x[~flag], y[~flag], "o", ms=3.5, mfc="none", mec=INK, mew=0.8,
+                label="plot", gid="residuals")
+        if flag.any():
+            ax.plot(x[flag], y[flag], "D", ms=5, color=ACCENT, ls="none",
+                    label="large studentised residual", gid="flagged")
+        ax.set_xlabel(f"fitted {resp} (group + blocks + covariates)")
+        ax.set_ylabel("residual")
+        ax.set_title("Residuals against fitted values")
+        ax.grid(True, color="#e6e6e6", lw=0.6)
+        ax.set_axisbelow(True)
+        ax.legend(loc="upper left", fontsize=8)
+
+    return svg_text(draw, "residuals-fitted", (4.6, 4.2),
+                    "Residuals of the model against its fitted values")
+
+
+def block_effects_svg(names, labels, effects, response: str = "response") -> str:
+    """Return the estimated block effects, one panel per blocking factor.
+
+    Parameters
+    ----------
+    names : sequence of str
+        The blocking factors.
+    labels : sequence of sequences of str
+        The levels of each factor.
+    effects : sequence of arrays
+        The estimated effect of each level (centred to mean zero).
+    """
+    names = [_clip(n, 30) for n in names]
+    labels = [[_clip(s, 24) for s in lv] for lv in labels]
+    effects = [np.asarray(e, dtype=np.float64) for e in effects]
+    tallest = max((len(lv) for lv in labels), default=1)
+    height = min(1.6 + 0.22 * tallest, 30.0)
+    resp = _clip(response, 30)
+
+    def draw(fig):
+        axes = fig.subplots(1, max(len(names), 1), squeeze=False)[0]
+        for ax, name, lv, eff in zip(axes, names, labels, effects):
+            y = np.arange(len(lv))[::-1].astype(float)
+            ax.axvline(0.0, color=MUTED, lw=0.9)
+            ax.hlines(y, 0.0, eff, color=MUTED, lw=1.4)
+            ax.plot(eff, y, "o", ms=5, color=INK, ls="none", gid=f"effects-{len(lv)}")
+            ax.set_yticks(y, lv if len(lv) <= 40 else [""] * len(lv))
+            ax.set_ylim(-0.7, len(lv) - 0.3)
+            ax.set_xlabel(f"effect on {resp}")
+            ax.set_title(f"Blocks: {name}")
+            ax.grid(True, axis="x", color="#e6e6e6", lw=0.6)
+            ax.set_axisbelow(True)
+            ax.spines["left"].set_visible(False)
+            ax.tick_params(axis="y", length=0)
+
+    return svg_text(draw, "block-effects", (4.6 * max(len(names), 1) if len(names) > 1
+                                            else 4.8, height),
+                    "Estimated block effects, centred to mean zero")

@@ -13,6 +13,9 @@ Sections, each a ``<section>`` with a stable ``id``:
 ``verdict``      What was compared: the data, the family, the verdict in
                  plain words, the groups, and why this procedure
 ``rows``         Accounting of rows: read, used, set aside and why
+``model``        The model (only with blocks or covariates): terms, ANOVA
+                 tables, efficiency, CV, adjusted means, residuals against
+                 fitted values, block effects
 ``checks``       Checks on the data: the table, a residual quantile plot and a
                  spread-against-level plot
 ``comparisons``  Comparisons: the table, the interval plot (zero line, margin
@@ -44,6 +47,7 @@ __all__ = ["html_report", "SECTIONS", "CAUTIONS", "CSP"]
 SECTIONS = (
     ("verdict", "What was compared"),
     ("rows", "Accounting of rows"),
+    ("model", "The model: groups, blocks and covariates"),
     ("checks", "Checks on the data"),
     ("comparisons", "Comparisons"),
     ("crosscheck", "Cross-check"),
@@ -261,9 +265,11 @@ def _verdict(result) -> str:
                + (_list(lines) if lines else "") + (f"<p>{_e(tail.strip())}</p>" if tail
                                                     else "") + "</div>")
     g = result.groups
-    cols = [c for c in ("group", "n", "mean", "sd", "se", "median", "min", "max") if c in g]
+    cols = [c for c in ("group", "n", "adjusted_mean", "adjusted_se", "mean", "sd", "se",
+                        "median", "min", "max") if c in g]
     names = {"group": "group", "n": "n", "mean": "mean", "sd": "SD", "se": "SE of mean",
-             "median": "median", "min": "smallest", "max": "largest"}
+             "median": "median", "min": "smallest", "max": "largest",
+             "adjusted_mean": "adjusted mean", "adjusted_se": "SE of adjusted mean"}
     groups = ("<h3>The groups</h3>"
               + _table([names[c] for c in cols], g[cols].itertuples(index=False, name=None),
                        numeric=range(1, len(cols))))
@@ -325,6 +331,77 @@ def _rows(result) -> str:
     return _section("rows", "".join(out))
 
 
+def _model(result) -> str:
+    """The model section: terms, ANOVA tables, efficiency, adjusted means, figures."""
+    from ..model import fit_model
+    from ..diagnostics.model_checks import nonadditivity_check
+    lay = result.layout
+    fit = fit_model(lay)
+    out = [f"<p>The groups are compared under the additive model "
+           f"<strong>{_e(fit.describe())}</strong>: each plot's value is its group's effect "
+           f"plus its block's (and its covariates' contribution), plus an error of one "
+           f"common variance. The groups' means are adjusted (least-squares means): equal "
+           f"weight to every block, covariates at their overall means.</p>"]
+    facts = [("residual degrees of freedom", fit.df), ("error mean square", _num(fit.mse))]
+    eff = fit.efficiency()
+    if eff is not None:
+        facts.append(("relative efficiency of the blocking", _num(eff.relative_efficiency)))
+    if math.isfinite(fit.cv):
+        facts.append(("coefficient of variation", f"{fit.cv:.3g}%"))
+    facts.append(("adjusted means correlated", "yes" if fit.means_correlated else "no"))
+    out.append(_facts(facts))
+    if eff is not None:
+        out.append(f"<p>{_e(eff.sentence())}</p>")
+    for kind, heading in (("adjusted", "Analysis of variance, each term adjusted for the "
+                                       "others"),
+                          ("sequential", "Sequential analysis of variance (blocks, then "
+                                         "covariates, then groups)")):
+        tab = fit.anova(kind)
+        out.append(f"<h3>{_e(heading)}</h3>" + _table(
+            ["source", "kind", "df", "sum of squares", "mean square", "F", "p"],
+            ((src, r.kind, int(r.df), float(r.sum_of_squares), float(r.mean_square),
+              float(r.f), float(r.p)) for src, r in tab.iterrows()), numeric=range(2, 7)))
+    g = result.groups
+    cols = [c for c in ("group", "n", "adjusted_mean", "adjusted_se", "mean", "letters")
+            if c in g]
+    heads = {"group": "group", "n": "n", "adjusted_mean": "adjusted mean",
+             "adjusted_se": "SE", "mean": "raw mean", "letters": "letters"}
+    ordered = g.sort_values("adjusted_mean", ascending=False)
+    out.append("<h3>Adjusted means</h3>" + _table(
+        [heads[c] for c in cols], ordered[cols].itertuples(index=False, name=None),
+        numeric=range(1, 5)))
+    if "letters" in g:
+        out.append("<p class=\"small\">Groups sharing a letter were not declared different "
+                   "by the procedure.</p>")
+    slopes = fit.covariate_slopes
+    if slopes.size:
+        out.append("<h3>Covariates</h3>" + _table(
+            ["covariate", "slope per unit", "overall mean"],
+            zip(fit.design.covariate_names, map(float, slopes),
+                map(float, fit.design.covariate_means)), numeric=(1, 2)))
+    check = nonadditivity_check(lay)
+    if check is not None:
+        out.append(f"<p>{_e(check.sentence)}</p>")
+    t = fit.studentized_residuals()
+    flagged = np.nan_to_num(np.abs(t)) > 3.5
+    out.append('<div class="figures">')
+    out.append(_figure(figures.residual_fitted_svg(fit.fitted, fit.residuals, flagged,
+                                                   response=lay.response),
+                       "The model's residual of every plot against its fitted value. A "
+                       "funnel means spread grows with the level; a curve means the effects "
+                       "are not additive on this scale (a log scale may suit); marked plots "
+                       "have a studentised residual beyond 3.5.", "residuals-fitted"))
+    if fit.block_effects:
+        out.append(_figure(figures.block_effects_svg(fit.design.block_names,
+                                                     fit.design.block_labels,
+                                                     fit.block_effects, lay.response),
+                           "The estimated effect of every block on the response, centred to "
+                           "mean zero: how much of the variation the blocking removed from "
+                           "the comparisons.", "block-effects"))
+    out.append("</div>")
+    return _section("model", "".join(out))
+
+
 def _checks(result) -> str:
     from ..diagnostics.shape import residuals, standardised_residuals
     f, lay = result.findings, result.layout
@@ -333,18 +410,30 @@ def _checks(result) -> str:
         for c in getattr(f, area):
             rows.append((area, c.name, c.method, c.statistic, c.p_value, c.threshold,
                          _tag(c.verdict, c.verdict), c.sentence))
-    out = ["<p>The checks look at the within-group residuals (each value minus its group "
-           "mean): their shape, the spread of the groups and the design.</p>",
+    model = lay.design is not None
+    out = [("<p>The checks look at the residuals of the model (each plot's value minus its "
+            "fitted value): their shape, their spread by group and the design.</p>") if model
+           else ("<p>The checks look at the within-group residuals (each value minus its "
+                 "group mean): their shape, the spread of the groups and the design.</p>"),
            _table(["area", "check", "method", "statistic", "p-value", "flagged when",
                    "verdict", "finding"], rows, numeric=(3, 4))]
-    z = standardised_residuals(lay)
-    st = lay.stats
-    res = residuals(lay)
+    if model:
+        from ..diagnostics.model_checks import group_residual_sd, model_scaled_residuals
+        from ..model import fit_model
+        fit = fit_model(lay)
+        z = model_scaled_residuals(fit)
+        means, sds, res = fit.adjusted_mean, group_residual_sd(fit), fit.residuals
+        level = means[lay.codes]
+    else:
+        z = standardised_residuals(lay)
+        st = lay.stats
+        means, sds, res = st.mean, st.sd, residuals(lay)
+        level = st.mean[lay.codes]
     qq = figures.residual_quantile_svg(z)
     thin = (" Above 2000 residuals the plot shows the 100 most extreme at each end and an "
             "even selection of the rest." if z.size > 2000 else "")
-    sl = figures.spread_level_svg(lay.labels, st.mean, st.sd,
-                                  st.mean[lay.codes] if lay.n_total <= 5000 else None,
+    sl = figures.spread_level_svg(lay.labels, means, sds,
+                                  level if lay.n_total <= 5000 else None,
                                   np.abs(res) if lay.n_total <= 5000 else None,
                                   response=lay.response)
     out.append('<div class="figures">')
@@ -597,9 +686,13 @@ def html_report(result) -> str:
     """
     lay, rec = result.layout, result.decision
     title = f"famwise report: {lay.response} by {lay.group}"
-    sections = [_verdict(result), _rows(result), _checks(result), _comparisons(result),
-                _crosscheck(result)]
-    present = ["verdict", "rows", "checks", "comparisons", "crosscheck"]
+    sections = [_verdict(result), _rows(result)]
+    present = ["verdict", "rows"]
+    if lay.design is not None:
+        sections.append(_model(result))
+        present.append("model")
+    sections += [_checks(result), _comparisons(result), _crosscheck(result)]
+    present += ["checks", "comparisons", "crosscheck"]
     if result.calibration is not None:
         sections.append(_calibration(result.calibration, rec.route["procedure"]))
         present.append("calibration")

@@ -13,7 +13,7 @@ import pandas as pd
 
 from .textformat import format_number, frame_text
 
-__all__ = ["summary_text", "CAUTION"]
+__all__ = ["summary_text", "model_lines", "anova_display", "CAUTION"]
 
 CAUTION = ("Caution: significance is not importance, field data do not prove causes, and "
            "regulated or safety decisions need the applicable rules and a qualified "
@@ -22,6 +22,35 @@ CAUTION = ("Caution: significance is not importance, field data do not prove cau
 
 def _interval(lo, hi) -> str:
     return f"[{format_number(lo)}, {format_number(hi)}]"
+
+
+def anova_display(fit) -> pd.DataFrame:
+    """The adjusted ANOVA table as shown in reports (source as a column)."""
+    tab = fit.anova("adjusted").reset_index()
+    tab = tab.rename(columns={"sum_of_squares": "sum of squares", "mean_square": "mean square",
+                              "f": "F"})
+    return tab[["source", "kind", "df", "sum of squares", "mean square", "F", "p"]]
+
+
+def model_lines(result, wrap) -> list[str]:
+    """The model section of the summary: terms, ANOVA table, efficiency, CV."""
+    from ..model import fit_model
+    fit = fit_model(result.layout)
+    lines = [wrap(f"Model: {fit.describe()}."),
+             "Analysis of variance (each term adjusted for the others)",
+             frame_text(anova_display(fit))]
+    eff = fit.efficiency()
+    extra = []
+    if eff is not None:
+        extra.append(eff.sentence())
+    if np.isfinite(fit.cv):
+        extra.append(f"Coefficient of variation {fit.cv:.3g}%.")
+    if fit.means_correlated:
+        extra.append("The adjusted means are correlated (covariates or incomplete blocks); "
+                     "each comparison uses its own standard error from the model.")
+    if extra:
+        lines.append(wrap(" ".join(extra)))
+    return lines
 
 
 def summary_text(result, width: int = 100) -> str:
@@ -35,9 +64,15 @@ def summary_text(result, width: int = 100) -> str:
                 f"ledger)."),
            wrap(f"Procedure: {rec.route['procedure']} ({rec.route['route']} route, chosen by "
                 f"the {rec.route['chosen_by']}); familywise alpha {rec.alpha:g}."), ""]
-    groups = result.groups.sort_values("mean", ascending=False)
-    cols = ["group", "n", "mean", "sd"] + (["letters"] if "letters" in groups else [])
-    out.append("Groups, largest mean first"
+    model = lay.design is not None
+    if model:
+        out += model_lines(result, wrap) + [""]
+    key = "adjusted_mean" if model else "mean"
+    groups = result.groups.sort_values(key, ascending=False)
+    cols = (["group", "n", "adjusted_mean", "adjusted_se", "mean"] if model
+            else ["group", "n", "mean", "sd"]) + (["letters"] if "letters" in groups else [])
+    out.append(("Groups, largest adjusted mean first" if model else
+                "Groups, largest mean first")
                + (" (groups sharing a letter were not declared different)"
                   if "letters" in groups else ""))
     out.append(frame_text(groups[cols].reset_index(drop=True)))
@@ -56,7 +91,7 @@ def summary_text(result, width: int = 100) -> str:
     out.append(f"Comparisons ({len(t)})")
     out.append(frame_text(shown, max_label=min(40, max(12, width // 3))))
     out.append("")
-    reasons = " ".join(rec.route["reasons"][:3])
+    reasons = " ".join(rec.route["reasons"][:3]) or "see the decision record."
     if rec.route["chosen_by"] == "user" and rec.route["against"]:
         reasons += " Checks that argue against it: " + "; ".join(rec.route["against"]) + "."
     out.append(wrap("Why: " + reasons))
