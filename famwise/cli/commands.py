@@ -308,8 +308,9 @@ def _split(text):
 
 def _read_options(args) -> dict:
     return dict(wide=args.wide, columns=_split(args.columns), order=_split(args.order),
-                exclude_rows=_split(args.exclude_rows) or (), block=_split(args.block),
-                covariates=_split(args.covariate), **_file_options(args))
+                exclude_rows=_split(args.exclude_rows) or (),
+                block=_split(getattr(args, "block", None)),
+                covariates=_split(getattr(args, "covariate", None)), **_file_options(args))
 
 
 def _read(args):
