@@ -31,7 +31,7 @@ from __future__ import annotations
 from ..core.families import Family
 from ..core.layout import Layout
 from ..model import fit_model
-from ..procedures.catalogue import CATALOGUE, check_design, model_procedures
+from ..procedures.catalogue import CATALOGUE, check_design
 from .check import Findings
 from .policy import Policy
 
@@ -53,17 +53,24 @@ def model_summary(layout: Layout) -> dict:
             "notes": list(fit.notes)}
 
 
-def _first(route: str, prefer: str = "") -> str | None:
-    names = [n for n in model_procedures(route) if "stepdown" not in n]
-    preferred = [n for n in names if prefer in n]
-    return (preferred or names or [None])[0]
+#: The resampling procedures of a blocked or covariate layout, by role: the
+#: permutation within blocks (Freedman-Lane with covariates) and the wild
+#: bootstrap of heteroscedasticity-consistent t (used when registered for
+#: the model, ``"model"`` in their catalogue ``designs``).
+PERMUTATION = "permutation-maxt"
+HETEROSCEDASTIC = "wild-bootstrap-maxt"
+
+
+def _available(name: str) -> str | None:
+    info = CATALOGUE.get(name)
+    return name if info is not None and "model" in info.designs else None
 
 
 def model_crosscheck(procedure: str, family: Family, layout: Layout) -> str | None:
     """The independent second procedure for a model layout (None if there is none)."""
     info = CATALOGUE[procedure]
     if info.route in ("classical", "fdr") or procedure == "multivariate-t":
-        return _first("resample", "permutation")
+        return _available(PERMUTATION)
     fit = fit_model(layout)
     if family.kind == "vs-reference":
         return "multivariate-t" if fit.means_correlated and "multivariate-t" in CATALOGUE \
@@ -127,10 +134,10 @@ def choose_model(findings: Findings, family: Family, layout: Layout, policy: Pol
     reasons = []
     alternatives = [Alternative(p, _one_way_set_aside(layout.design))
                     for p in ("games-howell", "permutation-maxt", "bootstrap-maxt")
-                    if p in CATALOGUE]
+                    if p in CATALOGUE and "model" not in CATALOGUE[p].designs]
     route, proc = None, None
     if poor:
-        perm = _first("resample", "permutation")
+        perm = _available(PERMUTATION)
         if perm is not None:
             route, proc = "resample", perm
             reasons.append("The model's residuals are far from normal. " + " ".join(poor)
@@ -143,12 +150,13 @@ def choose_model(findings: Findings, family: Family, layout: Layout, policy: Pol
                             "pooled model procedures are used: treat borderline results "
                             "with caution.")
     if proc is None and unequal:
-        hc = _first("unequal")
+        hc = _available(HETEROSCEDASTIC)
         if hc is not None:
-            route, proc = "unequal", hc
+            route, proc = CATALOGUE[hc].route, hc
             reasons.append("The spread of the model's residuals differs between groups. "
-                           + " ".join(unequal) + " So a heteroscedasticity-consistent "
-                           "covariance of the contrasts is used.")
+                           + " ".join(unequal) + " So the contrasts get a "
+                           "heteroscedasticity-consistent covariance, with a max-t "
+                           "calibrated by the wild bootstrap.")
         else:
             warnings.append("The spread of the model's residuals differs between groups, but "
                             "no unequal-variance procedure for blocked or covariate designs "

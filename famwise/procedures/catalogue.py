@@ -27,8 +27,16 @@ class ProcedureInfo:
     families: tuple[str, ...]
     purpose: str
     # "one-way": the layout's groups alone; "model": reads famwise.model's fit
-    # (blocks and covariates), so it may run on a blocked or covariate layout
-    designs: tuple[str, ...] = ("one-way",)
+    # (blocks and covariates), so it may run on a blocked or covariate layout.
+    # Default: the pooled routes ("classical", "fdr") read the model (their
+    # estimates come from famwise.procedures.classical.pooled_estimates), the
+    # others do not.
+    designs: tuple[str, ...] | None = None
+
+    def __post_init__(self):
+        if self.designs is None:
+            object.__setattr__(self, "designs", ("one-way", "model")
+                               if self.route in ("classical", "fdr") else ("one-way",))
 
 
 _ALL = ("all-pairs", "vs-reference", "contrasts")
