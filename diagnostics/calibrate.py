@@ -132,7 +132,7 @@ def calibrate_layout(layout: Layout, family: Family, *, alpha: float = 0.05,
                      replicates: int = 2000, shape: str = "normal", seed: int = 0,
                      procedures=None, pipeline: bool = True,
                      policy: Policy | None = None, n_jobs=1,
-                     backend: str = "threads") -> Calibration:
+                     backend: str = "threads", options: dict | None = None) -> Calibration:
     """Estimate every candidate's FWER, and the pipeline's, at ``layout``'s design.
 
     Runs on the stacked-replicate engine (:mod:`famwise.diagnostics.simulate`):
@@ -140,8 +140,16 @@ def calibrate_layout(layout: Layout, family: Family, *, alpha: float = 0.05,
     once; the route's quick calibration, when the policy asks for it, once at
     the observed design.  A layout with blocks or covariates is calibrated
     under its model (:func:`famwise.diagnostics.model_calibrate.calibrate_model`).
+    ``options`` (validated procedure options, see
+    :func:`famwise.procedures.catalogue.check_options`) apply to every
+    procedure in ``procedures``, which must then be given; the pipeline, if
+    asked for, runs with every procedure's defaults in a simulation of its own.
     """
     if layout.design is not None:
+        if options:
+            raise FamwiseInputError(
+                f"the calibration under a blocked or covariate model does not simulate "
+                f"procedure options ({', '.join(options)}); calibrate without them")
         from .model_calibrate import calibrate_model
         rows, routes, design = calibrate_model(
             layout, family, alpha=alpha, replicates=replicates, shape=shape, seed=seed,
@@ -149,19 +157,43 @@ def calibrate_layout(layout: Layout, family: Family, *, alpha: float = 0.05,
         return Calibration(alpha, family.m, shape, replicates, int(seed), design,
                            pd.DataFrame(rows), routes)
     from .simulate import route_table, simulate
+    from .stacked_procedures import WARP_STATISTICS
     policy = policy or Policy()
     if replicates < 100:
         raise FamwiseInputError(f"replicates must be at least 100; got {replicates}")
+    options = dict(options or {})
+    if options and procedures is None:
+        raise FamwiseInputError(
+            f"options ({', '.join(options)}) belong to the procedures you name: pass "
+            f"procedures=[...] (--procedure NAME)")
     names = list(procedures) if procedures is not None else _candidates(family)
+    if options.get("statistic", "welch") not in WARP_STATISTICS or (
+            "trim" in options and any(CATALOGUE[p].route == "resample" for p in names)):
+        shown = ", ".join(f"{k}={v}" for k, v in options.items())
+        raise FamwiseInputError(
+            f"the error-rate simulation does not cover the resampling procedures with "
+            f"{shown} (it simulates their Welch or pooled statistics); calibrate "
+            f"yuen-holm for trimmed means")
     design = null_design(layout, shape)
     table = route_table(family, layout, policy, alpha) if pipeline else None
-    sim = simulate(design, family, names + (["auto"] if pipeline else []),
-                   replicates=replicates, seed=np.random.SeedSequence(seed), alpha=alpha,
-                   policy=policy, table=table, n_jobs=n_jobs, backend=backend)
+    root = np.random.SeedSequence(seed)
+    if options:
+        sim = simulate(design, family, names, replicates=replicates, seed=root,
+                       alpha=alpha, policy=policy, n_jobs=n_jobs, backend=backend,
+                       options=options)
+        auto = simulate(design, family, ["auto"], replicates=replicates, seed=root,
+                        alpha=alpha, policy=policy, table=table, n_jobs=n_jobs,
+                        backend=backend) if pipeline else None
+    else:
+        sim = simulate(design, family, names + (["auto"] if pipeline else []),
+                       replicates=replicates, seed=root, alpha=alpha,
+                       policy=policy, table=table, n_jobs=n_jobs, backend=backend)
+        auto = sim
+    given = ", ".join(f"{k} = {v}" for k, v in options.items())
     rows = []
     for name in names:
         hits = sim.rejects[name].any(axis=1)
-        method = sim.methods[name]
+        method = sim.methods[name] + (f"; options {given}" if given else "")
         if name == "holm" or name.endswith("stepdown") or name in ("welch-holm", "yuen-holm"):
             method += "; under the complete null it errs exactly when its single-step " \
                       "counterpart does"
@@ -169,13 +201,13 @@ def calibrate_layout(layout: Layout, family: Family, *, alpha: float = 0.05,
             method += "; under the complete null the FDR equals the FWER"
         rows.append(_row(name, hits, replicates, method, alpha))
     if pipeline:
-        rows.append(_row("automatic pipeline", sim.rejects["auto"].any(axis=1), replicates,
+        rows.append(_row("automatic pipeline", auto.rejects["auto"].any(axis=1), replicates,
                          "checks and routing re-run on every replicate", alpha))
     st = layout.stats
     design_record = {"labels": list(layout.labels), "n": st.n.tolist(), "sd": st.sd.tolist(),
-                     "family": family.kind}
+                     "family": family.kind, "options": options}
     return Calibration(alpha, family.m, shape, replicates, int(seed), design_record,
-                       pd.DataFrame(rows), sim.route_counts())
+                       pd.DataFrame(rows), auto.route_counts() if auto is not None else {})
 
 
 def _row(name, hits, used, method, alpha):

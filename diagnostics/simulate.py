@@ -151,14 +151,17 @@ class _Task:
     warp: tuple
     alpha: float
     policy: Policy | None          # None: no pipeline
+    options: dict | None = None    # the procedures' own options (same for every one)
 
 
 def _chunk(task: _Task, size: int, seed: np.random.SeedSequence) -> dict:
     rng = np.random.default_rng(seed)
     stack = draw(task.design, size, rng)
-    out = {"closed": {name: closed_form_rejects(name, task.family, stack, task.alpha)
+    out = {"closed": {name: closed_form_rejects(name, task.family, stack, task.alpha,
+                                                task.options)
                       for name in task.closed},
-           "warp": {name: warp_statistics(name, task.family, stack, rng) for name in task.warp}}
+           "warp": {name: warp_statistics(name, task.family, stack, rng, task.options)
+                    for name in task.warp}}
     if task.policy is not None:
         found = stacked_checks(stack.x, stack.blocks, task.policy,
                                summaries=(stack.means, stack.vars))
@@ -169,7 +172,8 @@ def _chunk(task: _Task, size: int, seed: np.random.SeedSequence) -> dict:
 def simulate(design: Scenario, family: Family, procedures, *, replicates: int,
              seed: np.random.SeedSequence, alpha: float = 0.05, pipeline: bool = False,
              policy: Policy | None = None, table: dict | None = None, n_jobs=1,
-             backend: str = "threads", scheduler=None, on_chunk=None) -> Simulation:
+             backend: str = "threads", scheduler=None, on_chunk=None,
+             options: dict | None = None) -> Simulation:
     """Simulate ``replicates`` data sets of ``design`` and record the decisions.
 
     Parameters
@@ -192,6 +196,10 @@ def simulate(design: Scenario, family: Family, procedures, *, replicates: int,
         As for the resampling engine; results do not depend on them.
     on_chunk : callable, optional
         Called with each chunk's size (for a progress bar).
+    options : dict, optional
+        Procedure options (validated by the caller) applied to every named
+        procedure: ``trim`` (``yuen-holm``) and ``statistic`` (``"welch"`` or
+        ``"pooled"``, the resampling procedures).  Not with the pipeline.
     """
     from ..resample.engine import chunk_seed, chunk_sizes, run_tasks
     policy = policy or Policy()
@@ -203,7 +211,9 @@ def simulate(design: Scenario, family: Family, procedures, *, replicates: int,
     closed = tuple(p for p in needed if not is_resampling(p))
     warp = tuple(dict.fromkeys(single_step_name(p) for p in needed if is_resampling(p)))
     quiet = policy.replace(calibrate_candidates=False) if pipeline else None
-    task = _Task(design, family, closed, warp, float(alpha), quiet)
+    if options and pipeline:
+        raise ValueError("procedure options apply to named procedures, not the pipeline")
+    task = _Task(design, family, closed, warp, float(alpha), quiet, dict(options or {}))
     sizes = chunk_sizes(replicates, CHUNK)
     parts: dict[int, dict] = {}
 

@@ -115,8 +115,13 @@ def _involved(family: Family) -> int:
     return int(np.unique(family.pairs).size) if family.pairs is not None else family.k
 
 
-def closed_form_rejects(name: str, family: Family, stack: Stack, alpha: float) -> np.ndarray:
-    """Return which comparisons a closed-form procedure rejects in each row, (R, m)."""
+def closed_form_rejects(name: str, family: Family, stack: Stack, alpha: float,
+                        options: dict | None = None) -> np.ndarray:
+    """Return which comparisons a closed-form procedure rejects in each row, (R, m).
+
+    ``options`` are the procedure's own (validated) options; ``yuen-holm``
+    reads ``trim``.
+    """
     w, n = family.weights, stack.n
     m = family.m
     means, variances = stack.means, stack.vars
@@ -154,7 +159,8 @@ def closed_form_rejects(name: str, family: Family, stack: Stack, alpha: float) -
     if name == "welch-dunnett":
         return _welch_dunnett_rejects(family, means, variances, n, alpha)
     if name == "yuen-holm":
-        return adjust.holm(_yuen_p(family, stack), axis=1) <= alpha
+        trim = (options or {}).get("trim", 0.2)
+        return adjust.holm(_yuen_p(family, stack, trim), axis=1) <= alpha
     raise KeyError(name)
 
 
@@ -215,18 +221,25 @@ def _hall_t(w, x, means, variances, stack: Stack):
     return hall_transform(t, hall_skew(w, variances, n, gamma, v2))
 
 
-def warp_statistics(name: str, family: Family, stack: Stack, rng) -> tuple[np.ndarray,
-                                                                             np.ndarray]:
+#: The procedure options the warp-speed simulation honours (others are refused
+#: by :func:`famwise.diagnostics.calibrate.calibrate_layout`).
+WARP_STATISTICS = ("welch", "pooled")
+
+
+def warp_statistics(name: str, family: Family, stack: Stack, rng,
+                    options: dict | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Return ``(|t|, |t*|)``, each (R, m): each row's observed statistics and
     those of its one resample (permutation, or within-group bootstrap of the
-    centred values), for the single-step procedure behind ``name``."""
+    centred values), for the single-step procedure behind ``name``.
+    ``options["statistic"]`` (``"welch"`` or ``"pooled"``) picks the t."""
     name = single_step_name(name)
     w, n = family.weights, stack.n
     hall = name == "bootstrap-hall"
+    t_of = pooled_t if (options or {}).get("statistic", "welch") == "pooled" else welch_t
     if hall:
         t_obs = _hall_t(w, stack.x, stack.means, stack.vars, stack)
     else:
-        t_obs, _ = welch_t(w, stack.means, stack.vars, n)
+        t_obs, _ = t_of(w, stack.means, stack.vars, n)
     x = stack.x
     if name.startswith("permutation"):
         xs = rng.permuted(x, axis=1)
@@ -241,7 +254,7 @@ def warp_statistics(name: str, family: Family, stack: Stack, rng) -> tuple[np.nd
     if hall:
         t_star = _hall_t(w, xs, ms, vs, stack)
     else:
-        t_star, _ = welch_t(w, ms, vs, n)
+        t_star, _ = t_of(w, ms, vs, n)
     return np.abs(t_obs), np.abs(t_star)
 
 

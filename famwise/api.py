@@ -24,7 +24,8 @@ from .intake.reader import Intake, file_sha256, read
 from .core.layout import Layout
 from .intake.ledger import Ledger
 from .procedures.margin import check_margin, classify
-from .procedures.catalogue import CATALOGUE, check_procedure, run_procedure
+from .procedures.catalogue import (CATALOGUE, check_options, check_procedure, option_arguments,
+                                   run_procedure)
 from .comparison import Comparison
 from .core.results import DecisionRecord, environment
 from .intake.summary import group_summary
@@ -125,7 +126,7 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
             margin=None, resamples=9999, seed=None, n_jobs=1, backend="threads",
             scheduler=None, policy=None, crosscheck=True, progress=None,
             calibrate=False, command=None, block=None, covariates=None,
-            **read_options) -> Comparison:
+            options=None, **read_options) -> Comparison:
     """Compare groups: check the data, choose a procedure, run it and cross-check it.
 
     Parameters
@@ -174,6 +175,17 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
         mean square and df, checks on its residuals.
     covariates : str or list of str, optional
         Numeric covariate columns (baseline measurements) for the same model.
+    command : str, optional
+        The command line to record (the CLI passes its own); by default the
+        record gets the command that reproduces this call.
+    options : dict, optional
+        The named procedure's own options, for example ``{"trim": 0.1}`` for
+        ``yuen-holm`` or ``{"statistic": "pooled"}`` for the permutation
+        procedures (``famwise procedures`` lists each procedure's options).
+        Keys are checked against the procedure's allowed keys and values
+        parsed to their types (text such as ``"0.1"`` is accepted); they
+        need a named ``procedure``, not ``"auto"``, and are recorded in the
+        decision record (``options``) and its command line.
     **read_options
         Passed to :func:`famwise.intake.read` (wide, columns, sheet, decimal,
         encoding, order, merge_spellings, delimiter).
@@ -189,6 +201,7 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
     margin = check_margin(margin)
     if procedure != "auto":
         check_procedure(procedure)
+    options = check_options(procedure, options)
     if backend not in _BACKENDS:
         raise FamwiseInputError(f"backend must be one of {', '.join(_BACKENDS)}; got {backend!r}")
     if alternative != "two-sided" and family != "vs-reference":
@@ -207,7 +220,7 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
         warnings.warn(SmallGroupWarning(w), stacklevel=2)
     resampling_options = dict(resamples=resamples, seed=seed, n_jobs=n_jobs, backend=backend,
                               scheduler=scheduler, progress=progress)
-    table = _run(route.procedure, layout, fam, alpha, alternative, resampling_options)
+    table = _run(route.procedure, layout, fam, alpha, alternative, resampling_options, options)
     check = None
     if crosscheck and route.crosscheck:
         from .procedures.crosscheck import crosscheck as run_crosscheck
@@ -235,7 +248,7 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
     from .procedures.omnibus import omnibus_test
     omnibus = omnibus_test(route.route, layout)
     record = _record(intake, data, fam, alpha, margin, findings, pol, route, check, table,
-                     command, response, group, seed, block, covariates)
+                     command, response, group, seed, block, covariates, options)
     record = dataclasses.replace(record, omnibus=omnibus.to_dict())
     return Comparison(groups=groups, comparisons=table, decision=record, crosscheck=check,
                       ledger=ledger, findings=findings, layout=layout, family=fam,
@@ -245,7 +258,7 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
 def calibrate(data, response=None, group=None, *, family="all-pairs", reference=None,
               contrasts=None, alpha=0.05, replicates=2000, shape="normal", seed=None,
               procedures=None, pipeline=True, policy=None, block=None, covariates=None,
-              **read_options):
+              options=None, **read_options):
     """Estimate familywise error rates under the complete null at the observed design.
 
     For every candidate procedure of the family (or those named in
@@ -253,6 +266,14 @@ def calibrate(data, response=None, group=None, *, family="all-pairs", reference=
     included), at the observed group sizes and SDs, with normal errors or
     (``shape="observed"``) errors resampled from the standardised residuals.
     See :mod:`famwise.diagnostics.calibrate` for the methods.
+
+    ``options`` (a mapping, as for :func:`compare`) apply to every procedure
+    in ``procedures``, which must then be named; each key is checked against
+    each procedure's allowed keys.  The simulation covers ``trim`` for
+    ``yuen-holm`` and ``statistic`` ``"welch"`` or ``"pooled"`` for the
+    resampling procedures; other combinations are refused, never ignored.
+    The options are shown in the table's ``method`` and kept in
+    ``.design["options"]``.
 
     Returns
     -------
@@ -265,17 +286,22 @@ def calibrate(data, response=None, group=None, *, family="all-pairs", reference=
     alpha = check_alpha(alpha)
     if procedures is not None:
         procedures = [check_procedure(p).name for p in procedures]
+    if options and procedures is None:
+        check_options("auto", options)          # raises: options need named procedures
+    parsed = {}
+    for name in procedures or ():
+        parsed = check_options(name, options)
     intake = load_data(data, response, group, block=block, covariates=covariates,
                        **read_options)
     fam = build_family(intake.layout.labels, family, reference, contrasts)
     return calibrate_layout(intake.layout, fam, alpha=alpha, replicates=int(replicates),
                             shape=shape, seed=_seed(seed), procedures=procedures,
-                            pipeline=pipeline, policy=_policy(policy))
+                            pipeline=pipeline, policy=_policy(policy), options=parsed)
 
 
-def _run(name, layout, fam, alpha, alternative, resampling_options) -> pd.DataFrame:
+def _run(name, layout, fam, alpha, alternative, resampling_options, own=None) -> pd.DataFrame:
     info = CATALOGUE[name]
-    options = {}
+    options = dict(own or {})
     if info.route in ("resample", "ranks"):
         options.update(resampling_options)
     if alternative != "two-sided":
@@ -284,8 +310,8 @@ def _run(name, layout, fam, alpha, alternative, resampling_options) -> pd.DataFr
 
 
 def _record(intake, data, fam: Family, alpha, margin, findings, pol, route: Route, check,
-            table, command, response, group, seed, block=None, covariates=None
-            ) -> DecisionRecord:
+            table, command, response, group, seed, block=None, covariates=None,
+            options=None) -> DecisionRecord:
     led = intake.ledger
     is_file = isinstance(data, (str, os.PathLike))
     resampling = table.attrs.get("resampling")
@@ -295,7 +321,7 @@ def _record(intake, data, fam: Family, alpha, margin, findings, pol, route: Rout
                                      if u])
     if command is None:
         command = _reproduce(data, response, group, fam, alpha, route, resampling, seed,
-                             block, covariates)
+                             block, covariates, options or {})
     model = None
     if intake.layout.design is not None:
         from .diagnostics.model_route import model_summary
@@ -310,7 +336,8 @@ def _record(intake, data, fam: Family, alpha, margin, findings, pol, route: Rout
                 "comparisons": list(fam.names)},
         alpha=alpha, margin=margin, checks=findings.to_records(), policy=pol.to_dict(),
         route=route.to_dict(), crosscheck=check.to_dict() if check is not None else None,
-        resampling=resampling, environment=environment(), command=command, model=model)
+        resampling=resampling, environment=environment(), command=command, model=model,
+        options=dict(options or {}))
 
 
 def _columns_option(value) -> str:
@@ -318,7 +345,7 @@ def _columns_option(value) -> str:
 
 
 def _reproduce(data, response, group, fam, alpha, route, resampling, seed, block=None,
-               covariates=None) -> str:
+               covariates=None, options=None) -> str:
     source = os.fspath(data) if isinstance(data, (str, os.PathLike)) else "<DataFrame>"
     parts = ["famwise", "compare", source]
     if response:
@@ -337,6 +364,7 @@ def _reproduce(data, response, group, fam, alpha, route, resampling, seed, block
     parts += ["--alpha", f"{alpha:g}"]
     if route.chosen_by == "user":
         parts += ["--procedure", route.procedure]
+        parts += option_arguments(options or {})
     if resampling is not None:
         parts += ["--resamples", str(resampling["resamples"])]
     parts += ["--seed", str(seed)]

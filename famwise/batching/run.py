@@ -65,6 +65,7 @@ import pandas as pd
 
 from ..core.errors import FamwiseInputError, FamwiseWarning
 from ..intake.reader import file_sha256, find_column
+from ..procedures.catalogue import check_options, option_arguments
 from ..report.output import prepare_folder
 from ..resample.dask_client import dask_session
 from .results import (_FDR, _FDR_NAMES, BATCH_FILES, BATCH_SCHEMA, CENSORED_CAUTION,
@@ -105,7 +106,7 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
           seed=None, n_jobs=1, backend="processes", scheduler=None, policy=None,
           crosscheck=True, out=None, force=False, caution=None, command=None,
           sheet=None, delimiter=None, decimal=".", encoding=None,
-          merge_spellings=False, block=None, covariates=None) -> BatchResult:
+          merge_spellings=False, block=None, covariates=None, options=None) -> BatchResult:
     """Compare groups for many responses (and strata) and screen them by false discovery rate.
 
     Parameters
@@ -163,6 +164,10 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
         applied to every task (and never taken as responses); the omnibus
         test is then the model's F for groups, adjusted for the blocks and
         covariates.
+    options : dict, optional
+        The named procedure's own options, as for :func:`famwise.compare`
+        (checked up front, applied to every task, recorded in the batch
+        record's settings and in each task's command).
 
     Returns
     -------
@@ -197,6 +202,7 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
     from ..intake.reader import load_table
     started = time.perf_counter()
     alpha = _check_settings(alpha, fdr, backend, scheduler, procedure, group, seed, decimal)
+    options = check_options(procedure, options)
     pol = _policy(policy)
     root = np.random.SeedSequence(seed)
     raw = load_table(data, sheet=sheet, delimiter=delimiter, decimal=decimal, encoding=encoding)
@@ -211,7 +217,8 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
                     merge_spellings=bool(merge_spellings),
                     by=raw.header[b] if b is not None else None,
                     block=[raw.header[j] for j in model_cols["block"]] or None,
-                    covariates=[raw.header[j] for j in model_cols["covariates"]] or None)
+                    covariates=[raw.header[j] for j in model_cols["covariates"]] or None,
+                    options=options)
     plan = _plan_tasks(raw, data, picked, g, b, settings, root, command)
 
     if out is not None:             # refuse before the work, not after it
@@ -403,8 +410,8 @@ def _batch_record(raw, data, plan, table, g, b, skipped, settings, fdr, root, wh
                   "rows_read": int(len(raw.body)), "rows_without_stratum": plan.no_stratum,
                   "notes": list(raw.notes)},
         "settings": {"family": s["family"], "reference": s["reference"],
-                     "procedure": s["procedure"], "alpha": s["alpha"],
-                     "resamples": s["resamples"], "seed": _entropy(root),
+                     "procedure": s["procedure"], "options": dict(s["options"]),
+                     "alpha": s["alpha"], "resamples": s["resamples"], "seed": _entropy(root),
                      "seeds": "task i uses the i-th child of numpy SeedSequence(seed), "
                               "63 bits of its state (the seed column)",
                      "crosscheck": s["crosscheck"], "policy": s["policy"].to_dict(),
@@ -458,6 +465,6 @@ def _batch_command(data, names, responses, group, settings, fdr, root):
     if settings["reference"] is not None:
         parts += ["--reference", settings["reference"]]
     parts += ["--fdr", fdr, "--alpha", f"{settings['alpha']:g}", "--procedure",
-              settings["procedure"], "--resamples", str(settings["resamples"]),
-              "--seed", str(_entropy(root))]
+              settings["procedure"], *option_arguments(settings.get("options") or {}),
+              "--resamples", str(settings["resamples"]), "--seed", str(_entropy(root))]
     return shlex.join(parts)

@@ -17,6 +17,7 @@ import pandas as pd
 from ..core.errors import FamwiseInputError, FamwiseWarning
 from ..intake.reader import Intake, read
 from ..intake.ledger import Dropped, Ledger
+from ..procedures.catalogue import option_arguments
 from ..procedures.omnibus import OMNIBUS  # noqa: F401  (re-exported for run.py)
 
 
@@ -169,7 +170,8 @@ def _run_task(task: _Task, source: str, group: str, notes, options: dict, render
                              alpha=options["alpha"], resamples=options["resamples"],
                              seed=task.seed, n_jobs=1, backend="threads",
                              policy=options["policy"], crosscheck=options["crosscheck"],
-                             progress=False, command=task.command)
+                             progress=False, command=task.command,
+                             options=options.get("options"))
         except FamwiseInputError as exc:
             return _Outcome(task.index, "input-error",
                             str(exc).replace("'<DataFrame>'", where),
@@ -225,7 +227,8 @@ def _task_command(source, data, response, group, stratum, settings, seed, comman
         parts += ["--covariate", ",".join(settings["covariates"])]
     parts += ["--alpha", f"{settings['alpha']:g}"]
     if settings["procedure"] != "auto":
-        parts += ["--procedure", settings["procedure"]]
+        parts += ["--procedure", settings["procedure"],
+                  *option_arguments(settings.get("options") or {})]
     parts += ["--resamples", str(settings["resamples"]), "--seed", str(seed)]
     if settings["merge_spellings"]:
         parts.append("--merge-spellings")

@@ -100,6 +100,7 @@ def _add_compare_options(p: argparse.ArgumentParser) -> None:
                         "backticks)")
     p.add_argument("--procedure", "-p", default="auto", metavar="NAME",
                    help="procedure identifier, or auto (default); see famwise procedures")
+    _add_option_flag(p)
     p.add_argument("--alpha", type=float, default=0.05, help="familywise level (default 0.05)")
     p.add_argument("--alternative", choices=("two-sided", "greater", "less"),
                    default="two-sided", help="direction, for vs-reference (default two-sided)")
@@ -122,6 +123,27 @@ def _add_compare_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--format", choices=("text", "json", "csv"), default="text",
                    help="what to print: the summary, the decision record, or the table")
     p.add_argument("--quiet", "-q", action="store_true", help="print nothing but warnings")
+
+
+def _add_option_flag(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--option", action="append", default=[], metavar="KEY=VALUE",
+                   help="an option of the named procedure, e.g. trim=0.1 (repeatable; "
+                        "famwise procedures lists each procedure's options)")
+
+
+def _procedure_options(pairs) -> dict | None:
+    """``--option KEY=VALUE`` arguments as a dict of texts (parsed by the catalogue)."""
+    out = {}
+    for pair in pairs or ():
+        key, sep, value = pair.partition("=")
+        key = key.strip()
+        if not sep or not key:
+            raise FamwiseInputError(f"--option needs KEY=VALUE, e.g. --option trim=0.1; "
+                                    f"got {pair!r}")
+        if key in out:
+            raise FamwiseInputError(f"--option {key} is given twice")
+        out[key] = value.strip()
+    return out or None
 
 
 def _resamples(text):
@@ -176,6 +198,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--contrasts", metavar="TEXT")
     p.add_argument("--alpha", type=float, default=0.05)
     p.add_argument("--replicates", type=int, default=2000, metavar="N")
+    p.add_argument("--procedure", "-p", action="append", metavar="NAME",
+                   help="calibrate only this procedure (repeatable; default: every candidate)")
+    _add_option_flag(p)
     p.add_argument("--shape", choices=("normal", "observed"), default="normal",
                    help="errors: normal, or resampled from the observed residuals")
     p.add_argument("--seed", type=int)
@@ -206,6 +231,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--reference", metavar="LABEL", help="reference group for vs-reference")
     p.add_argument("--procedure", "-p", default="auto", metavar="NAME",
                    help="procedure identifier for every task, or auto (default)")
+    _add_option_flag(p)
     p.add_argument("--alpha", type=float, default=0.05,
                    help="familywise level within a task, and false discovery rate across "
                         "tasks (default 0.05)")
@@ -361,7 +387,8 @@ def _compare(args, command):
                    resamples=_resamples(args.resamples), seed=args.seed, n_jobs=args.jobs,
                    backend=args.backend, scheduler=args.scheduler, policy=args.policy,
                    crosscheck=not args.no_crosscheck, calibrate=args.calibrate,
-                   command=command, **_read_options(args))
+                   command=command, options=_procedure_options(args.option),
+                   **_read_options(args))
 
 
 def _emit(result, args) -> None:
@@ -397,7 +424,8 @@ def _run_calibrate(args) -> int:
     result = calibrate(args.file, args.response, args.group, family=args.family,
                        reference=args.reference, contrasts=args.contrasts, alpha=args.alpha,
                        replicates=args.replicates, shape=args.shape, seed=args.seed,
-                       policy=args.policy, **_read_options(args))
+                       policy=args.policy, procedures=args.procedure,
+                       options=_procedure_options(args.option), **_read_options(args))
     if args.format == "json":
         print(json.dumps(result.to_dict(), indent=2))
     elif args.format == "csv":
@@ -428,7 +456,8 @@ def _run_batch(args) -> int:
                    backend=args.backend, scheduler=args.scheduler, policy=args.policy,
                    crosscheck=not args.no_crosscheck, out=args.out, force=args.force,
                    command=command, block=_split(args.block),
-                   covariates=_split(args.covariate), **_file_options(args))
+                   covariates=_split(args.covariate), options=_procedure_options(args.option),
+                   **_file_options(args))
     if not args.quiet:
         if args.format == "json":
             print(result.to_json())
@@ -503,13 +532,21 @@ def _run_procedures(args) -> int:
     from ..procedures.catalogue import CATALOGUE
     if args.format == "json":
         print(json.dumps([{"name": p.name, "route": p.route, "families": list(p.families),
-                           "purpose": p.purpose} for p in CATALOGUE.values()], indent=2))
+                           "purpose": p.purpose,
+                           "options": [{"name": o.name, "kind": o.kind, "default": o.default,
+                                        "choices": list(o.choices), "low": o.low,
+                                        "high": o.high, "doc": o.doc} for o in p.options]}
+                          for p in CATALOGUE.values()], indent=2))
         return 0
     import textwrap
     for p in CATALOGUE.values():
         print(f"{p.name}  [{p.route}; {', '.join(p.families)}]")
         print(textwrap.fill(p.purpose, width=96, initial_indent="    ",
                             subsequent_indent="    "))
+        for o in p.options:
+            print(textwrap.fill(f"--option {o.name}=... (default {o.default}): {o.doc}",
+                                width=96, initial_indent="      ",
+                                subsequent_indent="        "))
     return 0
 
 

@@ -27,7 +27,13 @@ always present, ``null`` where it does not apply:
                  "kruskal-wallis"), statistic, df (a list), p, note (why the
                  figures are null when the test is undefined for the data)
 ``environment``  famwise, python, numpy, scipy, pandas, numba, platform
-``command``      the command line or call that reproduces the run
+``command``      the command line or call that reproduces the run (with one
+                 ``--option KEY=VALUE`` per entry of ``options``)
+``options``      the named procedure's own options as validated and parsed
+                 (for example ``{"trim": 0.1}``), ``{}`` when none were given;
+                 each procedure's allowed keys are declared in
+                 :data:`famwise.procedures.catalogue.CATALOGUE`.  Records
+                 written before this key existed read back with ``{}``.
 ``model``        with blocks or covariates: description, terms [{name, kind,
                  df}], df_residual, mean_square_error, group_f, group_df,
                  group_p, efficiency (relative efficiency of the blocking and
@@ -82,6 +88,7 @@ class DecisionRecord:
     command: str
     omnibus: dict | None = None
     model: dict | None = None
+    options: dict = field(default_factory=dict)
     schema: str = SCHEMA
 
     def to_dict(self) -> dict:
@@ -122,7 +129,9 @@ class DecisionRecord:
         text.append("The checks found: " + " ".join(flagged) if flagged
                     else "The checks raised no concern.")
         if route["chosen_by"] == "user":
-            text.append(f"The user chose {route['procedure']}.")
+            opts = ", ".join(f"{k} = {v}" for k, v in (self.options or {}).items())
+            text.append(f"The user chose {route['procedure']}"
+                        + (f" with {opts}." if opts else "."))
             if route["against"]:
                 text.append("Checks that argue against it: " + "; ".join(route["against"]) + ".")
         else:

@@ -10,16 +10,88 @@ The catalogue names where each lives so that importing famwise stays cheap
 from __future__ import annotations
 
 import importlib
+from collections.abc import Mapping
 from dataclasses import dataclass
 
 from ..core.errors import FamwiseInputError, did_you_mean
 
-__all__ = ["ProcedureInfo", "CATALOGUE", "check_procedure", "check_design", "get_procedure",
+__all__ = ["ProcedureInfo", "ProcedureOption", "CATALOGUE", "check_procedure",
+           "check_design", "check_options", "option_arguments", "get_procedure",
            "model_procedures", "run_procedure"]
 
 
 @dataclass(frozen=True)
+class ProcedureOption:
+    """One option a procedure accepts beyond the common ones (alpha, resamples ...).
+
+    ``kind`` is ``"choice"`` (one of ``choices``), ``"float"`` or ``"int"``
+    (within ``[low, high)``; ``high=None``: no upper bound) or ``"bool"``.
+    """
+
+    name: str
+    kind: str
+    default: object
+    doc: str
+    choices: tuple = ()
+    low: float | None = None
+    high: float | None = None
+
+    def parse(self, value, procedure: str):
+        """Return ``value`` as this option's type (text from a command line too)."""
+        where = f"option {self.name!r} of {procedure!r}"
+        if self.kind == "choice":
+            text = str(value).strip()
+            if text not in self.choices:
+                hint = did_you_mean(text, self.choices)
+                raise FamwiseInputError(
+                    f"{where} must be one of {', '.join(map(repr, self.choices))}; got "
+                    f"{value!r}{hint}")
+            return text
+        if self.kind == "bool":
+            if isinstance(value, bool):
+                return value
+            text = str(value).strip().lower()
+            if text in ("true", "yes", "1", "on"):
+                return True
+            if text in ("false", "no", "0", "off"):
+                return False
+            raise FamwiseInputError(f"{where} must be true or false; got {value!r}")
+        try:
+            if isinstance(value, bool):
+                raise ValueError
+            number = float(str(value).strip()) if isinstance(value, str) else float(value)
+            if self.kind == "int":
+                if not number.is_integer():
+                    raise ValueError
+                number = int(number)
+        except (TypeError, ValueError, OverflowError):
+            what = "a whole number" if self.kind == "int" else "a number"
+            raise FamwiseInputError(f"{where} must be {what}; got {value!r}") from None
+        if (self.low is not None and not number >= self.low) or (
+                self.high is not None and not number < self.high):
+            span = " and ".join(part for part in (
+                f"at least {self.low:g}" if self.low is not None else "",
+                f"below {self.high:g}" if self.high is not None else "") if part)
+            raise FamwiseInputError(f"{where} must be {span}; got {value!r}")
+        return number
+
+
+_STAT_PERM = ProcedureOption(
+    "statistic", "choice", "welch",
+    "the statistic maximised: 'welch' (the default; stays valid under unequal "
+    "spreads as groups grow) or 'pooled' (the pooled-variance t)", choices=("welch", "pooled"))
+_STAT_BOOT = ProcedureOption(
+    "statistic", "choice", "welch",
+    "the bootstrapped statistic: 'welch', 'pooled', or 'yuen' (trimmed means, "
+    "see trim)", choices=("welch", "pooled", "yuen"))
+_TRIM = ProcedureOption("trim", "float", 0.2,
+                        "proportion trimmed from each end of every group", low=0.0, high=0.5)
+
+
+@dataclass(frozen=True)
 class ProcedureInfo:
+    """One catalogue entry: where the procedure lives, what it handles, its options."""
+
     name: str
     module: str
     function: str
@@ -32,11 +104,24 @@ class ProcedureInfo:
     # estimates come from famwise.procedures.classical.pooled_estimates), the
     # others do not.
     designs: tuple[str, ...] | None = None
+    options: tuple[ProcedureOption, ...] = ()
 
     def __post_init__(self):
         if self.designs is None:
             object.__setattr__(self, "designs", ("one-way", "model")
                                if self.route in ("classical", "fdr") else ("one-way",))
+
+    def option(self, key: str) -> ProcedureOption:
+        for opt in self.options:
+            if opt.name == key:
+                return opt
+        names = [o.name for o in self.options]
+        if not names:
+            raise FamwiseInputError(
+                f"procedure {self.name!r} takes no options of its own; got {key!r}")
+        raise FamwiseInputError(
+            f"procedure {self.name!r} has no option {key!r}{did_you_mean(key, names)} "
+            f"(its options: {', '.join(names)})")
 
 
 _ALL = ("all-pairs", "vs-reference", "contrasts")
@@ -87,21 +172,26 @@ CATALOGUE: dict[str, ProcedureInfo] = {p.name: p for p in [
                   "(multivariate t with the Welch correlations)."),
     ProcedureInfo("yuen-holm", "famwise.procedures.unequal", "yuen_holm", "unequal", _PAIRS,
                   "Trimmed means with winsorised variances (Yuen), Holm "
-                  "adjusted; resists outliers and heavy tails."),
+                  "adjusted; resists outliers and heavy tails.",
+                  options=(_TRIM,)),
     ProcedureInfo("permutation-maxt", "famwise.resample.procedures",
                   "permutation_maxt", "resample", _ALL,
                   "Single-step max-T over permutations of group labels "
-                  "(Welch statistics by default)."),
+                  "(Welch statistics by default).",
+                  options=(_STAT_PERM,)),
     ProcedureInfo("permutation-stepdown", "famwise.resample.procedures",
                   "permutation_stepdown", "resample", _ALL,
-                  "Step-down max-T over permutations; more powerful than single-step."),
+                  "Step-down max-T over permutations; more powerful than single-step.",
+                  options=(_STAT_PERM,)),
     ProcedureInfo("bootstrap-maxt", "famwise.resample.procedures",
                   "bootstrap_maxt", "resample", _ALL,
                   "Bootstrap-t max statistic with within-group resampling of "
-                  "centred data; unequal spreads and skew."),
+                  "centred data; unequal spreads and skew.",
+                  options=(_STAT_BOOT, _TRIM)),
     ProcedureInfo("bootstrap-stepdown", "famwise.resample.procedures",
                   "bootstrap_stepdown", "resample", _ALL,
-                  "Step-down version of the bootstrap max-t."),
+                  "Step-down version of the bootstrap max-t.",
+                  options=(_STAT_BOOT, _TRIM)),
     ProcedureInfo("bootstrap-hall", "famwise.resample.procedures",
                   "bootstrap_hall", "resample", _ALL,
                   "Bootstrap max-t of Welch statistics with Hall's skewness "
@@ -141,6 +231,41 @@ def check_procedure(name: str) -> ProcedureInfo:
         raise FamwiseInputError(
             f"unknown procedure {name!r}{hint} (known: {', '.join(CATALOGUE)}, "
             f"or 'auto')") from None
+
+
+def check_options(name: str, options) -> dict:
+    """Validate ``options`` for procedure ``name``; return them parsed to their types.
+
+    ``options`` is a mapping of option names to values (numbers, booleans or
+    text as a command line gives them) or None.  Each key must be one the
+    procedure declares (:attr:`ProcedureInfo.options`); an unknown key, or a
+    value of the wrong type or range, raises a one-line
+    :class:`~famwise.core.errors.FamwiseInputError` that lists the allowed keys.
+    The result keeps the order given.
+    """
+    if options is None:
+        return {}
+    if not isinstance(options, Mapping):
+        raise FamwiseInputError(
+            f"options must be a mapping of option names to values; got {options!r}")
+    if not options:
+        return {}
+    if name == "auto":
+        raise FamwiseInputError(
+            f"options ({', '.join(map(str, options))}) belong to a procedure: name it "
+            f"(procedure=..., --procedure NAME) rather than 'auto'")
+    info = check_procedure(name)
+    return {str(k): info.option(str(k)).parse(v, info.name) for k, v in options.items()}
+
+
+def option_arguments(options: dict) -> list[str]:
+    """Command-line arguments (``--option KEY=VALUE`` ...) that give ``options`` again."""
+    out = []
+    for key, value in options.items():
+        text = ("true" if value else "false") if isinstance(value, bool) else (
+            repr(value) if isinstance(value, float) else str(value))
+        out += ["--option", f"{key}={text}"]
+    return out
 
 
 def get_procedure(name: str):
