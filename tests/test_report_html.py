@@ -35,7 +35,7 @@ ALLOWED_TAGS = {
     "html", "head", "meta", "title", "style", "body", "header", "h1", "h2", "h3", "p",
     "nav", "ol", "ul", "li", "a", "main", "section", "div", "strong", "code", "pre",
     "table", "thead", "tbody", "tr", "th", "td", "span", "dl", "dt", "dd", "figure",
-    "figcaption", "footer",
+    "figcaption", "footer", "details", "summary",
     "svg", "defs", "g", "path", "use", "clippath", "rect", "text", "tspan",
 }
 URL_ATTRS = {"src", "href", "xlink:href", "action", "formaction", "data", "poster",
@@ -311,3 +311,71 @@ def test_blocked_report_has_the_model_section_and_its_figures():
         assert f'data-figure="{name}"' in page
     assert "Sequential analysis of variance" in page and "relative efficiency" in page
     assert page == html_report(res)          # deterministic
+
+
+def test_resampled_rows_say_so_instead_of_df_inf(plants):
+    """A resampling procedure has no degrees of freedom: the report says the
+    reference distribution is resampled (text and HTML), never "inf"."""
+    res = compare(plants, "weight", "group", procedure="permutation-maxt", resamples=199,
+                  seed=3, crosscheck=False)
+    assert np.all(np.isinf(res.comparisons["df"]))          # the table keeps df = inf
+    comp = section_html(html_report(res), "comparisons")
+    assert ">inf<" not in comp and ">resampled<" in comp
+    assert "reference distribution" in comp and "Monte Carlo SE of p" in comp
+    assert "the reference distribution is resampled" in res.summary()
+    classical = section_html(html_report(compare(plants, "weight", "group",
+                                                 procedure="tukey-kramer")), "comparisons")
+    assert ">27.00<" in classical and ">resampled<" not in classical    # df = N - k
+
+
+def test_main_comparisons_table_keeps_the_decision_in_view(page):
+    """The first table holds the estimate, interval, adjusted p and decision;
+    SE, statistic, df and unadjusted p follow in a details block."""
+    comp = section_html(page, "comparisons")
+    first = comp[:comp.index("<details")]
+    heads = re.findall(r"<th[^>]*>([^<]*)</th>", first)
+    assert heads[:6] == ["comparison", "difference", "95% lower", "95% upper", "p adjusted",
+                         "decision"]
+    more = comp[comp.index("<details"):comp.index("</details>")]
+    assert re.findall(r"<th[^>]*>([^<]*)</th>", more)[:5] == [
+        "comparison", "SE", "df", "statistic", "p alone"]
+
+
+def test_spread_level_labels_do_not_overlap():
+    """Groups with close means get labels that do not cover each other, any
+    point or the legend, and stay inside the plot (common practice, no
+    source).  Measured with matplotlib's own text extents."""
+    import matplotlib
+    from matplotlib.figure import Figure
+    from matplotlib.text import Text
+
+    from famwise.report import figures
+    labels = ["ctrl", "trt1", "trt2", "trt1 repeat", "trt2 repeat", "far"]
+    mean = np.array([5.03, 5.06, 5.04, 5.05, 5.07, 6.5])     # PlantGrowth-like, crowded
+    sd = np.array([0.58, 0.59, 0.60, 0.585, 0.595, 0.44])
+    with matplotlib.rc_context(figures._RC):
+        fig = Figure(figsize=(4.6, 4.2), dpi=72, layout="constrained")
+        ax = fig.add_subplot()
+        ax.plot(mean, sd, "s", ms=6, label="group SD")
+        ax.set_ylim(bottom=0)
+        ax.margins(x=0.12)
+        legend = ax.legend(loc="upper left")
+        texts = figures.place_labels(ax, mean, sd, labels, avoid=[legend])
+        renderer = fig.canvas.get_renderer()
+        boxes = []
+        for t in texts:
+            t.update_positions(renderer)
+            boxes.append(Text.get_window_extent(t, renderer))
+        points = ax.transData.transform(np.column_stack([mean, sd]))
+        legend_box = legend.get_window_extent(renderer)
+    assert [t.get_text() for t in texts] == labels
+    for i, a in enumerate(boxes):
+        assert ax.bbox.x0 <= a.x0 and a.x1 <= ax.bbox.x1 and ax.bbox.y0 <= a.y0 <= a.y1 <= ax.bbox.y1
+        assert not a.overlaps(legend_box), labels[i]
+        for px, py in points:
+            assert not (a.x0 - 3 < px < a.x1 + 3 and a.y0 - 3 < py < a.y1 + 3), labels[i]
+        for j in range(i):
+            assert not a.overlaps(boxes[j]), (labels[i], labels[j])
+    # and the report's own figure draws every label as text
+    svg = figures.spread_level_svg(labels, mean, sd)
+    assert all(f">{lab}<" in svg for lab in labels)

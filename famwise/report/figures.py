@@ -190,20 +190,87 @@ def spread_level_svg(labels, mean, sd, residual_level=None, residual_abs=None,
                     label="|residual| of one observation")
         ok = np.isfinite(mean) & np.isfinite(sd)
         ax.plot(mean[ok], sd[ok], "s", ms=6, color=INK, label="group SD")
-        if len(labels) <= 20:
-            for x, y, lab in zip(mean[ok], sd[ok], np.asarray(labels, dtype=object)[ok]):
-                ax.annotate(lab, (x, y), xytext=(5, 3), textcoords="offset points",
-                            fontsize=8, color="#333333")
         ax.set_xlabel(f"group mean of {resp}")
         ax.set_ylabel("spread (SD; grey: |residual|)")
         ax.set_title("Spread against level")
         ax.set_ylim(bottom=0)
+        ax.margins(x=0.12)               # room for the labels beside the points
         ax.grid(True, color="#e6e6e6", lw=0.6)
         ax.set_axisbelow(True)
-        ax.legend(loc="upper left", fontsize=8)
+        legend = ax.legend(loc="upper left", fontsize=8)
+        if len(labels) <= 20:
+            place_labels(ax, mean[ok], sd[ok], list(np.asarray(labels, dtype=object)[ok]),
+                         avoid=[legend])
 
     return svg_text(draw, "spread-level", (4.6, 4.2),
                     "Group standard deviation against group mean")
+
+
+#: Where a point's label may go, in points from the point, tried in turn: the
+#: four sides close by, then further up and down with a leader line.
+_OFFSETS = ([(5, 3, "left"), (5, -10, "left"), (-5, 3, "right"), (-5, -10, "right")]
+            + [(dx, dy, ha) for step in range(1, 9) for dy in (3 + 9 * step, -10 - 9 * step)
+               for dx, ha in ((8, "left"), (-8, "right"))])
+
+
+def place_labels(ax, xs, ys, labels, avoid=(), fontsize: float = 8.0) -> list:
+    """Label points so no label overlaps another label, a point or ``avoid``.
+
+    The figure's layout is settled first (and then frozen), so positions
+    measured here are the ones saved.  Each label takes the first of
+    :data:`_OFFSETS` whose box, in display coordinates with a small margin,
+    meets no box already taken and stays inside the axes; labels moved
+    away from their point get a thin leader line.  When every place is
+    taken (very crowded plots) the label goes where it overlaps least.
+    Returns the text artists, in the order of ``labels``.
+    """
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    fig = ax.figure
+    canvas = FigureCanvasAgg(fig)        # a renderer to measure text with
+    canvas.draw()                        # settle the constrained layout ...
+    fig.set_layout_engine("none")        # ... and keep it, so boxes stay put
+    renderer = canvas.get_renderer()
+    frame = ax.bbox
+    pts = ax.transData.transform(np.column_stack([xs, ys])) if len(xs) else np.zeros((0, 2))
+    from matplotlib.text import Text
+    from matplotlib.transforms import Bbox
+    taken = [Bbox.from_bounds(px - 4, py - 4, 8, 8) for px, py in pts]
+    taken += [a.get_window_extent(renderer) for a in avoid]
+    order = np.argsort(-np.asarray(ys, dtype=float), kind="stable")
+    placed = {}
+    for i in order.tolist():
+        x, y, lab = xs[i], ys[i], labels[i]
+        best = None                      # (overlap, offset, box): the least crowded place
+        for dx, dy, ha in _OFFSETS:
+            t = ax.annotate(lab, (x, y), xytext=(dx, dy), textcoords="offset points",
+                            ha=ha, va="bottom" if dy > 0 else "top", fontsize=fontsize)
+            t.update_positions(renderer)
+            box = Text.get_window_extent(t, renderer).padded(2)    # the text alone
+            t.remove()
+            outside = not (box.x0 >= frame.x0 and box.x1 <= frame.x1
+                           and box.y0 >= frame.y0 and box.y1 <= frame.y1)
+            clash = sum(_overlap(box, b) for b in taken) + (1e9 if outside else 0.0)
+            if best is None or clash < best[0]:
+                best = (clash, (dx, dy, ha), box)
+            if clash == 0.0:
+                break
+        _, (dx, dy, ha), box = best
+        far = abs(dy) > 12
+        placed[i] = ax.annotate(
+            lab, (x, y), xytext=(dx, dy), textcoords="offset points", ha=ha,
+            va="bottom" if dy > 0 else "top", fontsize=fontsize, color="#333333",
+            annotation_clip=False,
+            arrowprops=dict(arrowstyle="-", color="#9a9a9a", lw=0.5, shrinkA=1,
+                            shrinkB=4) if far else None)
+        taken.append(box)
+    return [placed[i] for i in range(len(labels))]
+
+
+def _overlap(a, b) -> float:
+    """Area shared by two display boxes (0 when they are apart)."""
+    w = min(a.x1, b.x1) - max(a.x0, b.x0)
+    h = min(a.y1, b.y1) - max(a.y0, b.y0)
+    return w * h if w > 0 and h > 0 else 0.0
 
 
 def interval_svg(names, difference, lower, upper, reject, *, margin=None,

@@ -101,7 +101,13 @@ th, td { padding: .22rem .6rem; border-bottom: 1px solid var(--rule); vertical-a
 thead th { border-bottom: 1.5px solid var(--ink); font-weight: 600; }
 td.num, th.num { text-align: right; font-variant-numeric: tabular-nums;
                  white-space: nowrap; }
-.wrap { overflow-x: auto; }
+.wrap { overflow-x: auto; }          /* scrolls only when its table cannot fit */
+table.comparisons th.num { white-space: normal; }
+table.comparisons td:first-child { max-width: 18rem; overflow-wrap: anywhere; }
+table.comparisons td.num, table.comparisons th.num { padding-left: .45rem;
+                                                     padding-right: .45rem; }
+details.more { margin: .2rem 0 .8rem; }
+details.more > summary { cursor: pointer; color: var(--muted); font-size: .9rem; }
 .tag { display: inline-block; padding: 0 .4rem; border: 1px solid currentColor;
        border-radius: 3px; font-size: .8rem; white-space: nowrap; }
 .tag.ok { color: #2f6b3a; } .tag.concern { color: #8a5a00; }
@@ -153,7 +159,7 @@ def _is_number(x) -> bool:
         x, (bool, np.bool_))
 
 
-def _table(headers, rows, numeric=()) -> str:
+def _table(headers, rows, numeric=(), css: str = "") -> str:
     """Render a table; cells are escaped text, numbers or :class:`_Html`."""
     numeric = set(numeric)
     head = "".join(f'<th scope="col"{_NUM if i in numeric else ""}>{_e(h)}</th>'
@@ -169,7 +175,8 @@ def _table(headers, rows, numeric=()) -> str:
             else:
                 cells.append(f'<td{_NUM if i in numeric else ""}>{_e(v)}</td>')
         body.append("<tr>" + "".join(cells) + "</tr>")
-    return (f'<div class="wrap"><table><thead><tr>{head}</tr></thead>'
+    klass = f' class="{_e(css)}"' if css else ""
+    return (f'<div class="wrap"><table{klass}><thead><tr>{head}</tr></thead>'
             f"<tbody>{''.join(body)}</tbody></table></div>")
 
 
@@ -455,15 +462,22 @@ def _checks(result) -> str:
     return _section("checks", "".join(out))
 
 
+def _reference_df(t: pd.DataFrame) -> list:
+    """The df column as a reader needs it: "resampled" where the reference
+    distribution is the resampled one (the table stores df = inf there)."""
+    resampled = "mc_error" in t
+    return ["resampled" if resampled and not np.isfinite(d) else
+            ("∞" if not np.isfinite(d) else d) for d in t["df"].to_numpy(dtype=float)]
+
+
 def _comparisons(result) -> str:
     rec, t = result.decision, result.comparisons
     level = _level(rec.alpha)
+    # The table a reader came for fits a 1280-pixel window: estimate, interval,
+    # adjusted p and the decision; the rest follows in a block of its own.
     cols = [("comparison", "comparison"), ("difference", "difference"),
-            ("std_error", "SE"), ("df", "df"), ("statistic", "statistic"),
-            ("p_unadjusted", "p alone"), ("p_adjusted", "p adjusted"),
-            ("ci_lower", f"{level} lower"), ("ci_upper", f"{level} upper")]
-    if "mc_error" in t:
-        cols.append(("mc_error", "Monte Carlo SE of p"))
+            ("ci_lower", f"{level} lower"), ("ci_upper", f"{level} upper"),
+            ("p_adjusted", "p adjusted")]
     rows = []
     for _, r in t.iterrows():
         row = [r[c] for c, _ in cols]
@@ -474,10 +488,29 @@ def _comparisons(result) -> str:
         rows.append(row)
     headers = [h for _, h in cols] + ["decision"] + (["against the margin"]
                                                      if "practical" in t else [])
+    resampled = "mc_error" in t
+    more_cols = [("std_error", "SE"), ("statistic", "statistic"),
+                 ("p_unadjusted", "p alone")] + (
+        [("mc_error", "Monte Carlo SE of p")] if resampled else [])
+    dfs = _reference_df(t)
+    more_rows = [[r["comparison"], r["std_error"], d, r["statistic"], r["p_unadjusted"]]
+                 + ([r["mc_error"]] if resampled else [])
+                 for (_, r), d in zip(t.iterrows(), dfs)]
+    more_head = ["comparison", "SE", "df" if not resampled else "reference distribution",
+                 "statistic", "p alone"] + (["Monte Carlo SE of p"] if resampled else [])
+    ref_note = (" The reference distribution is the resampled one (no degrees of freedom "
+                "apply); the Monte Carlo SE is that of the adjusted p-value."
+                if resampled else "")
     out = [f"<p>Procedure <strong>{_e(rec.route['procedure'])}</strong>; difference = first "
            f"group minus second (or the contrast's estimate); {level} intervals. "
            f"“p adjusted” accounts for the whole family.</p>",
-           _table(headers, rows, numeric=range(1, len(cols)))]
+           _table(headers, rows, numeric=range(1, len(cols)), css="comparisons"),
+           '<details class="more" open><summary>Standard errors, test statistics, '
+           'degrees of freedom and unadjusted p-values</summary>'
+           + (f'<p class="small">{_e(ref_note.strip())}</p>' if ref_note else "")
+           + _table(more_head, more_rows, numeric=range(1, len(more_head)),
+                    css="comparisons")
+           + "</details>"]
     if rec.margin is not None:
         out.append(f"<p>Margin: {_num(rec.margin)} (the smallest difference that matters). "
                    f"“important”: the whole interval lies beyond the margin; “equivalent "

@@ -101,8 +101,9 @@ def summary_text(result, width: int = 100) -> str:
         out.append(wrap("Cross-check: " + rec.crosscheck["sentence"]))
     if rec.resampling:
         r = rec.resampling
-        out.append(wrap(f"Resampling: B = {r['resamples']}, seed {r['seed']}, largest Monte "
-                        f"Carlo SE {r['max_mc_error']:.2g}"
+        out.append(wrap(f"Resampling: the reference distribution is resampled (no degrees "
+                        f"of freedom apply); B = {r['resamples']}, seed {r['seed']}, largest "
+                        f"Monte Carlo SE {r['max_mc_error']:.2g}"
                         + (f", unsettled: {', '.join(r['unsettled'])}" if r["unsettled"]
                            else "")))
     out.append(wrap(CAUTION))
