@@ -743,6 +743,7 @@ def _check_labels(names, used, first, rows, src: str, unit: str) -> None:
 
 def _excluded_rows(exclude_rows, raw: RawTable) -> set:
     rows = set()
+    data_rows = None
     for r in exclude_rows or ():
         try:
             value = int(r)
@@ -751,7 +752,9 @@ def _excluded_rows(exclude_rows, raw: RawTable) -> set:
                 from None
         if value != r and not isinstance(r, str):
             raise FamwiseInputError(f"row to exclude must be a whole number; got {r!r}")
-        if value not in set(raw.rows.tolist()):
+        if data_rows is None:
+            data_rows = set(raw.rows.tolist())       # once, not once per row asked for
+        if value not in data_rows:
             raise FamwiseInputError(
                 f"row {value} to exclude is not a data row of {raw.source!r} (data rows "
                 f"{raw.rows[0]} to {raw.rows[-1]})")
