@@ -28,6 +28,8 @@ procedure for a resampling primary.
 
 from __future__ import annotations
 
+import numpy as np
+
 from ..core.families import Family
 from ..core.layout import Layout
 from ..model import fit_model
@@ -49,7 +51,8 @@ def model_summary(layout: Layout) -> dict:
             "group_f": f, "group_df": [df1, df2], "group_p": p,
             "efficiency": eff.to_dict() if eff is not None else None,
             "efficiency_sentence": eff.sentence() if eff is not None else None,
-            "cv_percent": fit.cv, "means_correlated": fit.means_correlated,
+            "cv_percent": fit.cv if np.isfinite(fit.cv) else None,
+            "means_correlated": fit.means_correlated,
             "notes": list(fit.notes)}
 
 

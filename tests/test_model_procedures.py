@@ -205,3 +205,68 @@ def test_calibration_statistics_match_the_procedure_on_a_replicate():
         np.testing.assert_allclose(t[r], tab["statistic"], rtol=1e-9)
         f = fit_model(rep).group_test()
         assert p_f[r] == pytest.approx(f[3], rel=1e-8)
+
+
+# --- the route for a blocked or covariate layout ---------------------------------------
+
+def _route(layout, family):
+    from famwise.diagnostics import run_checks
+    from famwise.diagnostics.route import choose
+    return choose(run_checks(layout), family, layout)
+
+
+def test_route_uses_the_pooled_model_procedures_for_complete_blocks():
+    # Common practice, no source: with uncorrelated adjusted means (complete
+    # blocks) Tukey-Kramer for all pairs and Dunnett against a reference.
+    df, *spec = load_case("oats")
+    lay = make_layout(df, *spec)
+    route = _route(lay, all_pairs(lay.labels))
+    assert route.procedure == "tukey-kramer" or route.route != "classical"
+    route = _route(lay, vs_reference(lay.labels, lay.labels[0]))
+    assert route.procedure == "dunnett" or route.route != "classical"
+
+
+def test_route_prefers_the_exact_multivariate_t_when_means_are_correlated():
+    from famwise.procedures.catalogue import CATALOGUE
+    df, *spec = load_case("anorexia")
+    lay = make_layout(df, *spec)
+    route = _route(lay, all_pairs(lay.labels))
+    if route.route == "classical":
+        if "multivariate-t" in CATALOGUE:
+            assert route.procedure == "multivariate-t"
+            assert any("correlated" in r for r in route.reasons)
+        else:
+            assert route.procedure == "tukey-kramer"
+    aside = [a.procedure for a in route.alternatives]
+    assert "games-howell" in aside
+
+
+def test_route_records_a_users_one_way_form_against_correlated_means():
+    from famwise.diagnostics import run_checks
+    from famwise.diagnostics.route import choose
+    df, *spec = load_case("anorexia")
+    lay = make_layout(df, *spec)
+    fam = all_pairs(lay.labels)
+    route = choose(run_checks(lay), fam, lay, procedure="tukey-kramer")
+    assert route.chosen_by == "user"
+    assert any("correlated" in a for a in route.against)
+
+
+def test_nonadditivity_check_runs_with_blocks_only(plants):
+    from famwise.diagnostics import run_checks
+    df, *spec = load_case("immer")
+    names = [c.name for c in run_checks(make_layout(df, *spec)).design]
+    assert "non-additivity" in names
+    assert "non-additivity" not in [c.name for c in run_checks(plants).design]
+
+
+def test_record_of_a_response_with_a_negative_mean_serialises():
+    # the CV is undefined when the grand mean is not positive; the record says null
+    import json
+    df, *spec = load_case("immer")
+    df = df.assign(Y1=df["Y1"] - 500.0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = famwise.compare(df, "Y1", "Var", block="Loc", seed=4, crosscheck=False)
+    doc = json.loads(res.decision.to_json())
+    assert doc["model"]["cv_percent"] is None

@@ -433,12 +433,13 @@ def block_effects_svg(names, labels, effects, response: str = "response") -> str
     names = [_clip(n, 30) for n in names]
     labels = [[_clip(s, 24) for s in lv] for lv in labels]
     effects = [np.asarray(e, dtype=np.float64) for e in effects]
-    tallest = max((len(lv) for lv in labels), default=1)
-    height = min(1.6 + 0.22 * tallest, 30.0)
+    total = sum(len(lv) for lv in labels) or 1
+    height = min(0.9 + 0.7 * max(len(names), 1) + 0.22 * total, 40.0)
     resp = _clip(response, 30)
 
     def draw(fig):
-        axes = fig.subplots(1, max(len(names), 1), squeeze=False)[0]
+        axes = fig.subplots(max(len(names), 1), 1, squeeze=False,
+                            height_ratios=[max(len(lv), 1) for lv in labels] or None)[:, 0]
         for ax, name, lv, eff in zip(axes, names, labels, effects):
             y = np.arange(len(lv))[::-1].astype(float)
             ax.axvline(0.0, color=MUTED, lw=0.9)
@@ -453,6 +454,5 @@ def block_effects_svg(names, labels, effects, response: str = "response") -> str
             ax.spines["left"].set_visible(False)
             ax.tick_params(axis="y", length=0)
 
-    return svg_text(draw, "block-effects", (4.6 * max(len(names), 1) if len(names) > 1
-                                            else 4.8, height),
+    return svg_text(draw, "block-effects", (4.8, height),
                     "Estimated block effects, centred to mean zero")

@@ -235,6 +235,7 @@ def _verdict(result) -> str:
                 else "") + ".</p>")
     rejected = t[t["reject"].to_numpy(dtype=bool)]
     kept = len(t) - len(rejected)
+    mean_word = "adjusted mean" if lay.design is not None else "mean"
     proc = rec.route["procedure"]
     lines = []
     for r in rejected.itertuples():
@@ -242,7 +243,7 @@ def _verdict(result) -> str:
         if r.group_b:
             big, small_, lo2, hi2 = ((r.group_a, r.group_b, lo, hi) if d > 0
                                      else (r.group_b, r.group_a, -hi, -lo))
-            lines.append(f"“{big}” has a higher mean {lay.response} than “{small_}”, by "
+            lines.append(f"“{big}” has a higher {mean_word} {lay.response} than “{small_}”, by "
                          f"{_num(abs(d))} ({level} interval {_plain(lo2)} to {_plain(hi2)}; "
                          f"adjusted p = {_num(r.p_adjusted)}).")
         else:
