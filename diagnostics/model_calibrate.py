@@ -152,11 +152,11 @@ def calibrate_model(layout: Layout, family: Family, *, alpha: float = 0.05,
             proc = choose(run_checks(lay, quiet), family, lay, quiet, "auto", alpha).procedure
             chosen.append(proc)
             if proc not in reject:
-                try:
-                    reject[proc] = _hits(proc, family, layout, t, p_t, p_f, fit, alpha,
-                                         tables)[0]
-                except Exception:          # a resampling route: not estimated here
-                    reject[proc] = None
+                dual = proc in _DUAL or proc in ("holm", "lsd", "bh")
+                # a resampling route is not estimated here (module notes)
+                reject[proc] = (_hits(proc, family, layout, t, p_t, p_f, fit, alpha,
+                                      tables)[0]
+                                if dual and CATALOGUE[proc].route != "resample" else None)
             if reject[proc] is not None:
                 hits.append(bool(reject[proc][r]))
         routes = {str(p): int(c) for p, c in zip(*np.unique(chosen, return_counts=True))}
