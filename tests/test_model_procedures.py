@@ -270,3 +270,20 @@ def test_record_of_a_response_with_a_negative_mean_serialises():
         res = famwise.compare(df, "Y1", "Var", block="Loc", seed=4, crosscheck=False)
     doc = json.loads(res.decision.to_json())
     assert doc["model"]["cv_percent"] is None
+
+
+def test_model_calibration_keeps_bonferroni_within_its_level():
+    # Fact of the trade: Bonferroni's familywise error is at most alpha under
+    # any dependence; Holm errs exactly when Bonferroni does under the complete
+    # null.  2,000 replicates at the oats design (binomial SE about 0.005; the
+    # check allows alpha + 3 SE).
+    df, *spec = load_case("oats")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        cal = famwise.calibrate(df, "Y", "N", block="plot", replicates=2000, seed=11,
+                                pipeline=False)
+    rows = cal.table.set_index("procedure")
+    assert rows.loc["bonferroni", "fwer"] <= 0.05 + 3 * rows.loc["bonferroni", "se"]
+    assert rows.loc["holm", "fwer"] == rows.loc["bonferroni", "fwer"]
+    assert rows.loc["scheffe", "fwer"] <= rows.loc["tukey-kramer", "fwer"]
+    assert cal.design["blocks"] == ["plot"]
