@@ -72,6 +72,10 @@ def _parquet_bytes(folder):
 
 
 RG = ["--response", "nitrate", "--group", "mix"]
+# two mixes in two complete blocks, a covariate (invented layout, not a reference)
+BLOCKED = ("plot,mix,rep,nitrate,base\n1,Rye,1,10.5,4.1\n2,Fallow,1,20.1,4.6\n"
+           "3,Rye,1,11.2,4.3\n4,Fallow,1,21.7,4.2\n5,Rye,2,12.5,4.9\n6,Fallow,2,22.3,4.4\n"
+           "7,Rye,2,12.0,4.0\n8,Fallow,2,23.9,4.8\n")
 
 # (id, builder(folder) -> argv after "python -m famwise", exit code, expected
 #  substrings of the one stderr line, kind "error" | "warning")
@@ -238,6 +242,28 @@ CASES = [
     ("calibrate-too-few-replicates",
      lambda d: ["calibrate", _w(d, "g.csv", GOOD), *RG, "--replicates", "0"], 2,
      ["replicates must be at least 100; got 0"], "error"),
+    ("block-column-unknown",
+     lambda d: ["compare", _w(d, "b.csv", BLOCKED), *RG, "--block", "reps"], 2,
+     ["no block column 'reps'", "did you mean 'rep'?"], "error"),
+    ("block-with-one-plot",
+     lambda d: ["inspect", _w(d, "b.csv", BLOCKED + "9,Rye,3,11.9,4.0\n"), *RG,
+                "--block", "rep"], 2,
+     ["block '3' of 'rep'", "has only one plot (row 10)"], "error"),
+    ("three-block-columns",
+     lambda d: ["inspect", _w(d, "b.csv", BLOCKED), *RG, "--block", "rep,plot,base"], 2,
+     ["block takes one column, or two"], "error"),
+    ("covariate-text",
+     lambda d: ["calibrate", _w(d, "b.csv", BLOCKED.replace(",4.", ",x")), *RG,
+                "--covariate", "base"], 2,
+     ["covariate column 'base'", "holds no numbers"], "error"),
+    ("batch-block-is-group",
+     lambda d: ["batch", _w(d, "b.csv", BLOCKED), "--responses", "nitrate", "--group",
+                "mix", "--block", "mix"], 2,
+     ["block column 'mix' is the group column"], "error"),
+    ("block-of-measurements",
+     lambda d: ["inspect", _w(d, "b.csv", BLOCKED.replace(",1,", ",1.5,")
+                              .replace(",2,", ",2.5,")), *RG, "--block", "rep"], 0,
+     ["block column 'rep'", "holds non-integer numbers"], "warning"),
     ("plan-margin-zero",
      lambda d: ["plan", _w(d, "g.csv", GOOD), *RG, "--margin", "0"], 2,
      ["margin must be positive"], "error"),
