@@ -220,7 +220,13 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
         warnings.warn(SmallGroupWarning(w), stacklevel=2)
     resampling_options = dict(resamples=resamples, seed=seed, n_jobs=n_jobs, backend=backend,
                               scheduler=scheduler, progress=progress)
-    table = _run(route.procedure, layout, fam, alpha, alternative, resampling_options, options)
+    run_options = dict(options)
+    if CATALOGUE[route.procedure].route == "ranks" and route.procedure != "brunner-munzel-maxt":
+        # asymptotic with groups of policy.rank_permutation_below or more, else
+        # permutation, unless the user named a method (options={"method": ...})
+        run_options.setdefault("method", pol.rank_method(layout.stats.n))
+    table = _run(route.procedure, layout, fam, alpha, alternative, resampling_options,
+                 run_options)
     check = None
     if crosscheck and route.crosscheck:
         from .procedures.crosscheck import crosscheck as run_crosscheck

@@ -487,3 +487,23 @@ def test_omnibus_undefined_is_recorded_not_raised():
         welch = omnibus_test("unequal", lay)
     assert np.isnan(welch.p) and welch.note
     assert json.loads(json.dumps(welch.to_dict(), allow_nan=False))["p"] is None
+
+
+def test_compare_uses_the_permutation_version_for_small_groups(sprays):
+    import famwise
+    from famwise.diagnostics import Policy
+    # InsectSprays: twelve per spray, at or above Policy.rank_permutation_below = 10
+    res = famwise.compare(sprays, procedure="steel-dwass", seed=2, resamples=999,
+                          crosscheck=False)
+    assert "resampling" not in res.comparisons.attrs
+    assert "q(1 - alpha" in res.comparisons.attrs["interval_note"]
+    small = Layout.from_groups([g[:6] for g in sprays.split()], sprays.labels)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = famwise.compare(small, procedure="steel-dwass", seed=2, resamples=999,
+                              crosscheck=False)
+    assert res.comparisons.attrs["resampling"]["kernel"] == "placement_point_chunk"
+    assert res.decision.resampling["resamples"] == 999
+    assert "--resamples 999" in res.decision.command
+    assert Policy().rank_method([6, 12]) == "permutation"
+    assert Policy(rank_permutation_below=5).rank_method([6, 12]) == "asymptotic"

@@ -86,6 +86,21 @@ _STAT_BOOT = ProcedureOption(
     "see trim)", choices=("welch", "pooled", "yuen"))
 _TRIM = ProcedureOption("trim", "float", 0.2,
                         "proportion trimmed from each end of every group", low=0.0, high=0.5)
+_RANK_DOC = ("the reference distribution: 'asymptotic' (normal, studentized range or "
+             "Dunnett's at df = inf), 'permutation' (all labels permuted, B resamples)")
+_METHOD_ALL = ProcedureOption(
+    "method", "choice", "asymptotic",
+    _RANK_DOC + " or 'exact' (every assignment, tiny designs); compare's default is the "
+    "policy's (permutation when a group is under rank_permutation_below)",
+    choices=("asymptotic", "permutation", "exact"))
+_METHOD_DUNN = ProcedureOption(
+    "method", "choice", "asymptotic",
+    _RANK_DOC + "; compare's default is the policy's (permutation when a group is under "
+    "rank_permutation_below)", choices=("asymptotic", "permutation"))
+_METHOD_BM = ProcedureOption(
+    "method", "choice", "permutation",
+    "'permutation' (all labels permuted, B resamples) or 'exact' (every assignment, "
+    "tiny designs)", choices=("permutation", "exact"))
 
 
 @dataclass(frozen=True)
@@ -198,24 +213,27 @@ CATALOGUE: dict[str, ProcedureInfo] = {p.name: p for p in [
                   "correction; skewed data with small groups."),
     ProcedureInfo("dunn-holm", "famwise.procedures.ranks", "dunn_holm", "ranks", _PAIRS,
                   "Dunn's z on the joint ranks (tie-corrected) with Holm's step-down "
-                  "adjustment; skewed data, outliers or ordinal scores."),
+                  "adjustment; skewed data, outliers or ordinal scores.",
+                  options=(_METHOD_DUNN,)),
     ProcedureInfo("dunn-bonferroni", "famwise.procedures.ranks", "dunn_bonferroni", "ranks",
                   _PAIRS,
                   "Dunn's z on the joint ranks (tie-corrected) with Bonferroni's "
-                  "adjustment, as Dunn proposed it."),
+                  "adjustment, as Dunn proposed it.", options=(_METHOD_DUNN,)),
     ProcedureInfo("steel-dwass", "famwise.procedures.ranks", "steel_dwass", "ranks",
                   ("all-pairs",),
                   "All pairs by each pair's own Wilcoxon rank-sum z against the "
                   "studentized range (Steel-Dwass-Critchlow-Fligner), with "
-                  "simultaneous intervals for the Hodges-Lehmann shift."),
+                  "simultaneous intervals for the Hodges-Lehmann shift.",
+                  options=(_METHOD_ALL,)),
     ProcedureInfo("steel", "famwise.procedures.ranks", "steel", "ranks", ("vs-reference",),
                   "Each group against a reference by its own Wilcoxon rank-sum z "
-                  "(Steel), Dunnett-type joint distribution; one- or two-sided."),
+                  "(Steel), Dunnett-type joint distribution; one- or two-sided.",
+                  options=(_METHOD_ALL,)),
     ProcedureInfo("brunner-munzel-maxt", "famwise.procedures.brunner_munzel",
                   "brunner_munzel_maxt", "ranks", _PAIRS,
                   "Brunner-Munzel relative effects with a studentised-permutation "
                   "max-T; rank comparisons that stay valid when spreads or shapes "
-                  "differ."),
+                  "differ.", options=(_METHOD_BM,)),
     ProcedureInfo("bh", "famwise.procedures.classical", "bh", "fdr", _ALL,
                   "Benjamini-Hochberg false discovery rate (not familywise "
                   "error) on pooled t; exploratory families.", designs=_MODEL),
