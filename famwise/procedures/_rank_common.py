@@ -151,11 +151,17 @@ def _exact(setup: RankSetup, mode, u, thr, alternative, observed_fn):
 
 
 def reference_distribution(setup: RankSetup, method, mode, t_obs, opts_args,
-                           observed_fn, statistic_name) -> ReferenceDistribution:
+                           observed_fn, statistic_name,
+                           placements=None) -> ReferenceDistribution:
     """The permutation (engine) or exact distribution of the max statistic.
 
     ``observed_fn(codes)`` returns the statistics for label arrays ``codes``
-    (A, N) -> (A, m), the same function as for the observed data.
+    (A, N) -> (A, m), the same function as for the observed data (used by
+    ``method="exact"`` only).  ``placements`` is the pairwise-score structure
+    (:class:`famwise.resample.scores.Placements`; default: the point values
+    of the layout); a score such as Gehan's on censored values passes its
+    own, built from each observation's lower and upper ends, in the
+    layout's observation order.
     """
     from ..resample.scores import Placements, placement_problem
     from ..resample.maxt import resampling_attrs, run_maxt
@@ -166,7 +172,8 @@ def reference_distribution(setup: RankSetup, method, mode, t_obs, opts_args,
         return _exact(setup, mode, u, thr, setup.alternative, observed_fn)
     opts = rank_options(setup, **opts_args)
     lay = setup.layout
-    placements = Placements.from_values(lay.values)
+    if placements is None:
+        placements = Placements.from_values(lay.values)
     fixed_v = None
     if mode == "mantel" and not placements.has_ties:
         ni, nl = setup.n[setup.pairs[:, 0]], setup.n[setup.pairs[:, 1]]
