@@ -167,6 +167,11 @@ def calibrate_layout(layout: Layout, family: Family, *, alpha: float = 0.05,
             f"options ({', '.join(options)}) belong to the procedures you name: pass "
             f"procedures=[...] (--procedure NAME)")
     names = list(procedures) if procedures is not None else _candidates(family)
+    ranks = [n for n in names if n in CATALOGUE and CATALOGUE[n].route == "ranks"]
+    if ranks:
+        raise FamwiseInputError(
+            f"calibration does not simulate rank procedures yet ({', '.join(ranks)}); "
+            f"leave them out of procedures")
     if options.get("statistic", "welch") not in WARP_STATISTICS or (
             "trim" in options and any(CATALOGUE[p].route == "resample" for p in names)):
         shown = ", ".join(f"{k}={v}" for k, v in options.items())

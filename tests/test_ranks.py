@@ -507,3 +507,18 @@ def test_compare_uses_the_permutation_version_for_small_groups(sprays):
     assert "--resamples 999" in res.decision.command
     assert Policy().rank_method([6, 12]) == "permutation"
     assert Policy(rank_permutation_below=5).rank_method([6, 12]) == "asymptotic"
+
+
+def test_method_option_and_calibration_refusal(sprays):
+    import famwise
+    small = Layout.from_groups([g[:6] for g in sprays.split()], sprays.labels)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = famwise.compare(small, procedure="steel", reference="C", family="vs-reference",
+                              options={"method": "asymptotic"}, seed=1, crosscheck=False)
+    assert "resampling" not in res.comparisons.attrs
+    assert "--option method=asymptotic" in res.decision.command
+    with pytest.raises(FamwiseInputError, match="option 'method' of 'steel-dwass' must be one of"):
+        famwise.compare(small, procedure="steel-dwass", options={"method": "fast"})
+    with pytest.raises(FamwiseInputError, match="does not simulate rank procedures"):
+        famwise.calibrate(small, procedures=["steel-dwass"], replicates=200)
