@@ -49,7 +49,8 @@ class ResamplingProblem:
     """Everything a chunk kernel needs about one data set and family.
 
     ``kernel`` names a function of :mod:`famwise.resample.kernels` or
-    :mod:`famwise.resample.score_kernels`;
+    :mod:`famwise.resample.score_kernels` (or ``"module.function"`` of
+    another module of this package);
     ``args`` are its leading arguments (data, family, thresholds), to which
     the engine appends ``stepdown, size, rng_state``.
     """
@@ -169,9 +170,20 @@ def chunk_sizes(resamples: int, chunk_size: int) -> list[int]:
     return [chunk_size] * full + ([rest] if rest else [])
 
 
+def _kernel(name: str):
+    """The kernel function ``name`` of :mod:`kernels` or :mod:`score_kernels`,
+    or ``"module.name"`` of another module of this package (the model
+    kernels)."""
+    if "." in name:
+        import importlib
+        module, fn = name.split(".", 1)
+        return getattr(importlib.import_module(f"{__package__}.{module}"), fn)
+    return getattr(kernels, name, None) or getattr(score_kernels, name)
+
+
 def _run_chunk(problem: ResamplingProblem, stepdown: bool, size: int,
                rng_state: np.ndarray) -> ChunkResult:
-    fn = getattr(kernels, problem.kernel, None) or getattr(score_kernels, problem.kernel)
+    fn = _kernel(problem.kernel)
     maxima, hm, hs = fn(*problem.args, stepdown, size, rng_state)
     return ChunkResult(size, maxima, hm, hs)
 

@@ -29,6 +29,7 @@ from ..core.layout import Layout
 from ..core.table import comparisons_table
 from . import engine
 from .maxt import MC_LEVEL, UnsettledWarning, run_maxt
+from .design import design_inputs, model_observed, permutation_design, variance_terms
 from .statistics import (ALTERNATIVES, HALL_A_MAX, family_weights, hall_inverse,
                          observed_statistics, ssq_floor, trimmed_terms)
 
@@ -216,6 +217,69 @@ def _bootstrap_problem(layout, family, obs, opts) -> engine.ResamplingProblem:
     return engine.ResamplingProblem(kernel, args, layout.n_total, family.m)
 
 
+# Mean plots per group-by-block cell from which the kernel sums cells as runs
+# (else it gathers each unit's positions after the shuffle).
+RUNS_FROM = 4
+def _model_problem(design, family, obs, opts) -> engine.ResamplingProblem:
+    """Within-block permutation of the block (and covariate) model."""
+    fw = family_weights(family)
+    sign, two_sided = _orientation(opts.alternative)
+    order = np.argsort(-obs.u, kind="stable").astype(np.int64)
+    hptr, hcol, hval = variance_terms(design, family, opts.statistic)
+    d = design
+    welch = opts.statistic == "welch"
+    # Units the kernel sums over: group-by-block cells when the per-group
+    # residual sums need them (Welch, non-orthogonal, no covariates), else groups.
+    cells = welch and not d.orthogonal and d.q == 0
+    unit_of_cell = np.arange(d.cell_group.size) if cells else d.cell_group
+    lab = np.repeat(unit_of_cell, (d.cell_hi - d.cell_lo)).astype(np.int64)
+    if cells:
+        units = (d.cell_group, d.cell_block, d.cell_n)
+    else:
+        units = (np.arange(d.k, dtype=np.int64), np.zeros(d.k, dtype=np.int64), d.n_g)
+    blk_hi = d.cell_hi[d.blk_c1 - 1]
+    blk_stop = d.blk_lo.copy() if d.q else d.cell_hi[d.blk_c0]
+    sb = np.repeat(d.cell_block, (d.cell_hi - d.cell_lo))
+    blk_s = np.bincount(sb, weights=d.r, minlength=d.n_blocks)
+    blk_ss = np.bincount(sb, weights=d.r * d.r, minlength=d.n_blocks)
+    runs = bool(d.r.size >= RUNS_FROM * d.cell_group.size)
+    blk_cs = d.blk_c0 if d.q else d.blk_c0 + 1
+    gather = np.argsort(lab, kind="stable").astype(np.int64)
+    unit_ptr = np.zeros(units[0].size + 1, dtype=np.int64)
+    np.cumsum(np.bincount(lab, minlength=units[0].size), out=unit_ptr[1:])
+    args = (d.r, d.xc, lab, gather, unit_ptr, runs, d.blk_lo, np.ascontiguousarray(blk_stop),
+            np.ascontiguousarray(blk_hi), np.ascontiguousarray(blk_cs), d.blk_c1, blk_s,
+            blk_ss, d.cell_lo, d.cell_hi) + units + (
+            cells, d.cell_group, d.cell_block, d.cell_n, d.n_g, d.n_b, d.orthogonal, d.chol, d.fmat, d.kinv, d.sstot,
+            float(d.df_error), d.d_g, welch, fw.row_ptr, fw.col, fw.w, hptr, hcol, hval,
+            obs.se2_floor, sign, two_sided, obs.thr, order)
+    return engine.ResamplingProblem("model_kernels.permutation_model_chunk", args,
+                                    d.r.size, family.m)
+
+
+def _model_setup(layout, family, inputs, opts):
+    """The design, observed statistics and kernel problem of a model run."""
+    design = permutation_design(layout, inputs)
+    if opts.statistic == "welch":
+        short = np.flatnonzero(~(design.d_g > 0.5))
+        if short.size:
+            g = int(short[0])
+            raise FamwiseInputError(
+                f"group {layout.labels[g]!r} keeps {design.d_g[g]:.2f} residual degrees "
+                f"of freedom under the model, too few to estimate its own variance; "
+                f"use statistic='pooled'")
+    obs = model_observed(design, family, opts.statistic, opts.alternative)
+    info = {
+        "blocks": inputs.n_blocks if inputs.block_labels != ("all",) else 0,
+        "covariates": list(inputs.covariate_names),
+        "df_error": int(design.df_error),
+        "orthogonal": bool(design.orthogonal),
+        "exchange": ("residuals of the model without groups, within blocks"
+                     if inputs.q else "group labels within blocks"),
+    }
+    return obs, _model_problem(design, family, obs, opts), info
+
+
 # --- p-values, intervals, Monte Carlo error -----------------------------------
 
 def _centred(layout: Layout) -> Layout:
@@ -237,17 +301,36 @@ def _centred(layout: Layout) -> Layout:
 
 def _run(procedure, method, stepdown, layout, family, *, alpha, resamples, seed,
          n_jobs, backend, statistic, trim, alternative, chunk_size, progress,
-         scheduler, max_resamples, statistics_allowed) -> pd.DataFrame:
+         scheduler, max_resamples, statistics_allowed, blocks=None, covariates=None,
+         model=None, wild_weights=None) -> pd.DataFrame:
+    modelled = (blocks is not None or covariates is not None or model is not None
+                 or getattr(layout, "design", None) is not None)
+    if modelled and method == "bootstrap":
+        raise FamwiseInputError(
+            f"{procedure} resamples within the groups of a one-way layout; with blocks "
+            f"or covariates use wild-bootstrap-maxt (unequal variances) or "
+            f"permutation-maxt")
+    if statistic is None:
+        statistic = "pooled" if modelled else "welch"
     opts = _validate(layout, family, alpha=alpha, resamples=resamples,
                      max_resamples=max_resamples, seed=seed, n_jobs=n_jobs,
                      backend=backend, statistic=statistic,
                      statistics_allowed=statistics_allowed, trim=trim,
                      alternative=alternative, chunk_size=chunk_size,
                      progress=progress, scheduler=scheduler)
-    layout = _centred(layout)
-    obs = observed_statistics(layout, family, opts.statistic, opts.alternative, opts.trim)
-    build = _permutation_problem if method == "permutation" else _bootstrap_problem
-    problem = build(layout, family, obs, opts)
+    inputs = design_inputs(layout, blocks, covariates, model) if modelled else None
+    model_info = None
+    if method == "wild":
+        from .wild import wild_setup
+        obs, problem, model_info = wild_setup(layout, family, inputs, opts, wild_weights)
+    elif inputs is not None:
+        obs, problem, model_info = _model_setup(layout, family, inputs, opts)
+    else:
+        layout = _centred(layout)
+        obs = observed_statistics(layout, family, opts.statistic, opts.alternative,
+                                  opts.trim)
+        build = _permutation_problem if method == "permutation" else _bootstrap_problem
+        problem = build(layout, family, obs, opts)
     res = run_maxt(problem, obs.u, obs.thr, opts, stepdown=stepdown)
     run, b, seconds = res.run, res.resamples, res.seconds
     p_marginal, p_adjusted = res.p_marginal, res.p_adjusted
@@ -294,6 +377,8 @@ def _run(procedure, method, stepdown, layout, family, *, alpha, resamples, seed,
         "mc_level": MC_LEVEL,
         "seconds": float(seconds),
     }
+    if model_info is not None:
+        table.attrs["resampling"]["model"] = model_info
     return table
 
 
@@ -381,10 +466,33 @@ _REFERENCES = """
     .. [6] Hall, P. (1992). On the removal of skewness by transformation.
        *J. R. Statist. Soc. B* 54:221-228.
        doi:10.1111/j.2517-6161.1992.tb01876.x
+    .. [7] Fisher, R. A. (1935). *The Design of Experiments*. Oliver and
+       Boyd. (Randomisation within blocks as the basis of the test.)
+    .. [8] Freedman, D. and Lane, D. (1983). A nonstochastic interpretation
+       of reported significance levels. *J. Bus. Econ. Statist.* 1:292-298.
+       doi:10.2307/1391660 (from memory)
 """
 
-_PERM_STAT = ('"welch" (default; Welch-studentized, valid under unequal spread '
-              'asymptotically [3]) or "pooled" (pooled-variance t).')
+_PERM_STAT = ('"welch" or "pooled".  None (default): "welch" for one-way data '
+              '(Welch-studentized, valid under unequal spread asymptotically '
+              '[3]), "pooled" with blocks or covariates (the model\'s pooled t, '
+              'its error mean square recomputed for every permutation).  With '
+              'blocks or covariates "welch" studentizes each contrast by its '
+              'exact variance under one error variance per group, each '
+              'estimated from the group\'s residuals over its share of the '
+              'residual df.')
+_BLOCK_PARAMS = """
+    blocks : array-like of labels, shape (N,), optional
+        Block of each value, in the layout's order.  Labels are permuted
+        within blocks, the randomisation a blocked trial used [7]_.
+        Default: the layout's ``design`` (a second blocking factor, the
+        columns of a Latin square, enters as indicator covariates).
+    covariates : array-like, shape (N,) or (N, q), or DataFrame, optional
+        Numeric covariates: the residuals of the model without groups
+        (blocks and covariates) are permuted within blocks and the full
+        model refitted each time (Freedman & Lane [8]_).
+    model : famwise.model.ModelFit, optional
+        A fitted model whose blocks and covariates to use."""
 _BOOT_STAT = ('"welch" (default), "pooled", "yuen" (trimmed means with '
               'winsorized variances [5], trimming ``trim``), or "welch-hall" '
               '(Welch t with Hall\'s skewness-removing transformation [6], '
@@ -398,32 +506,39 @@ def _doc(summary, body, stat_doc, extra_param=""):
     params = _COMMON_PARAMETERS
     if stat_doc is None:            # the procedure fixes its statistic
         params = params.replace('    statistic : str, default="welch"\n        {stat_doc}\n', "")
+    if stat_doc is _PERM_STAT:
+        params = params.replace('statistic : str, default="welch"',
+                                'statistic : str or None, default=None')
     params = params.replace("{stat_doc}", stat_doc or "").replace("{extra_param}", extra_param)
     return summary + "\n" + body + params + _REFERENCES
 
 
 def permutation_maxt(layout, family, *, alpha=0.05, resamples=9999, seed=None,
-                     n_jobs=1, backend="threads", statistic="welch",
+                     n_jobs=1, backend="threads", statistic=None,
                      alternative="two-sided", chunk_size=None, progress=None,
-                     scheduler=None, max_resamples=DEFAULT_MAX_RESAMPLES):
+                     scheduler=None, max_resamples=DEFAULT_MAX_RESAMPLES,
+                     blocks=None, covariates=None, model=None):
     return _run("permutation-maxt", "permutation", False, layout, family,
                 alpha=alpha, resamples=resamples, seed=seed, n_jobs=n_jobs,
                 backend=backend, statistic=statistic, trim=0.2,
                 alternative=alternative, chunk_size=chunk_size, progress=progress,
                 scheduler=scheduler, max_resamples=max_resamples,
-                statistics_allowed=("welch", "pooled"))
+                statistics_allowed=("welch", "pooled"), blocks=blocks,
+                covariates=covariates, model=model)
 
 
 def permutation_stepdown(layout, family, *, alpha=0.05, resamples=9999, seed=None,
-                         n_jobs=1, backend="threads", statistic="welch",
+                         n_jobs=1, backend="threads", statistic=None,
                          alternative="two-sided", chunk_size=None, progress=None,
-                         scheduler=None, max_resamples=DEFAULT_MAX_RESAMPLES):
+                         scheduler=None, max_resamples=DEFAULT_MAX_RESAMPLES,
+                         blocks=None, covariates=None, model=None):
     return _run("permutation-stepdown", "permutation", True, layout, family,
                 alpha=alpha, resamples=resamples, seed=seed, n_jobs=n_jobs,
                 backend=backend, statistic=statistic, trim=0.2,
                 alternative=alternative, chunk_size=chunk_size, progress=progress,
                 scheduler=scheduler, max_resamples=max_resamples,
-                statistics_allowed=("welch", "pooled"))
+                statistics_allowed=("welch", "pooled"), blocks=blocks,
+                covariates=covariates, model=model)
 
 
 def bootstrap_maxt(layout, family, *, alpha=0.05, resamples=9999, seed=None,
@@ -482,7 +597,15 @@ permutation_maxt.__doc__ = _doc(
        famwise's own simulation): prefer the bootstrap there.
     2. Data are centred by the grand mean; each permutation is a partial
        Fisher-Yates shuffle of N - n_largest values.
-""", _PERM_STAT)
+    3. With blocks (and no covariates) the test is exact under the
+       randomisation within blocks; the estimates are the block model's
+       least-squares contrasts.  In a complete block design they are
+       contrasts of group means (blocks cancel); with missing plots the
+       reduced normal equations are solved in every permutation
+       (:mod:`famwise.resample.design`).  With covariates it is
+       approximate (exact as N grows).  ``attrs["resampling"]["model"]``
+       records the blocks, covariates, residual df and what was exchanged.
+""", _PERM_STAT, _BLOCK_PARAMS)
 
 permutation_stepdown.__doc__ = _doc(
     "Adjust a family by the step-down permutation max-T (Westfall & Young).",
@@ -499,7 +622,8 @@ permutation_stepdown.__doc__ = _doc(
     -----
     1. Controls the familywise error rate strongly under subset pivotality;
        the exchangeability caveats of :func:`permutation_maxt` apply.
-""", _PERM_STAT)
+    2. Blocks and covariates as in :func:`permutation_maxt`.
+""", _PERM_STAT, _BLOCK_PARAMS)
 
 bootstrap_maxt.__doc__ = _doc(
     "Adjust a family by the bootstrap-t max statistic with the null imposed.",

@@ -58,10 +58,10 @@ SEED = 20240611
 #: one-at-a-time ones.
 DUAL = {"tukey-kramer", "scheffe", "dunnett", "bonferroni", "sidak", "games-howell",
         "dunnett-t3", "welch-dunnett", "permutation-maxt", "bootstrap-maxt",
-        "bootstrap-hall", "welch", "lsd"}
+        "bootstrap-hall", "welch", "lsd", "wild-bootstrap-maxt"}
 #: Intervals are single-step ones: excluding zero implies rejection.
 EXCLUDE_IMPLIES_REJECT = {"holm", "welch-holm", "yuen-holm", "permutation-stepdown",
-                          "bootstrap-stepdown",
+                          "bootstrap-stepdown", "wild-bootstrap-stepdown",
                           # rank procedures: the Wilcoxon inversion rounds C down and
                           # uses the untied variance (their docstrings)
                           "steel-dwass", "steel"}

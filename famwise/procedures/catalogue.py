@@ -234,6 +234,14 @@ CATALOGUE: dict[str, ProcedureInfo] = {p.name: p for p in [
                   "Brunner-Munzel relative effects with a studentised-permutation "
                   "max-T; rank comparisons that stay valid when spreads or shapes "
                   "differ.", options=(_METHOD_BM,)),
+    ProcedureInfo("wild-bootstrap-maxt", "famwise.resample.wild",
+                  "wild_bootstrap_maxt", "resample", _ALL,
+                  "Max-t of heteroscedasticity-consistent (HC3) t statistics "
+                  "calibrated by the wild bootstrap; unequal variances with "
+                  "blocks or covariates."),
+    ProcedureInfo("wild-bootstrap-stepdown", "famwise.resample.wild",
+                  "wild_bootstrap_stepdown", "resample", _ALL,
+                  "Step-down version of the wild-bootstrap max-t."),
     ProcedureInfo("bh", "famwise.procedures.classical", "bh", "fdr", _ALL,
                   "Benjamini-Hochberg false discovery rate (not familywise "
                   "error) on pooled t; exploratory families.", designs=_MODEL),
