@@ -321,7 +321,7 @@ def _run(procedure, method, stepdown, layout, family, *, alpha, resamples, seed,
     inputs = design_inputs(layout, blocks, covariates, model) if modelled else None
     model_info = None
     if method == "wild":
-        from .wild import wild_setup
+        from .hc import wild_setup
         obs, problem, model_info = wild_setup(layout, family, inputs, opts, wild_weights)
     elif inputs is not None:
         obs, problem, model_info = _model_setup(layout, family, inputs, opts)
