@@ -78,8 +78,18 @@ class ProcedureOption:
 
 _STAT_PERM = ProcedureOption(
     "statistic", "choice", "welch",
-    "the statistic maximised: 'welch' (the default; stays valid under unequal "
-    "spreads as groups grow) or 'pooled' (the pooled-variance t)", choices=("welch", "pooled"))
+    "the statistic maximised: 'welch' (the default for one-way data; stays valid "
+    "under unequal spreads as groups grow) or 'pooled' (the pooled-variance t; the "
+    "default with blocks or covariates, the model's error mean square recomputed "
+    "for each permutation)", choices=("welch", "pooled"))
+_COVARIANCE = ProcedureOption(
+    "covariance", "choice", "hc3",
+    "heteroscedasticity-consistent standard errors: 'hc3' (MacKinnon and White) "
+    "or 'hc4' (Cribari-Neto; discounts high-leverage plots more)", choices=("hc3", "hc4"))
+_WEIGHTS = ProcedureOption(
+    "weights", "choice", "rademacher",
+    "wild-bootstrap weights: 'rademacher' (+-1) or 'webb' (six points; more "
+    "distinct resamples with few plots)", choices=("rademacher", "webb"))
 _STAT_BOOT = ProcedureOption(
     "statistic", "choice", "welch",
     "the bootstrapped statistic: 'welch', 'pooled', or 'yuen' (trimmed means, "
@@ -140,6 +150,7 @@ class ProcedureInfo:
 
 
 _ALL = ("all-pairs", "vs-reference", "contrasts")
+_BOTH = ("one-way", "model")     # runs one-way, or on the model (blocks, covariates)
 _PAIRS = ("all-pairs", "vs-reference")
 _MODEL = ("one-way", "model")
 
@@ -192,12 +203,13 @@ CATALOGUE: dict[str, ProcedureInfo] = {p.name: p for p in [
     ProcedureInfo("permutation-maxt", "famwise.resample.procedures",
                   "permutation_maxt", "resample", _ALL,
                   "Single-step max-T over permutations of group labels "
-                  "(Welch statistics by default).",
-                  options=(_STAT_PERM,)),
+                  "(Welch statistics one-way; with blocks, within blocks with "
+                  "the block model's pooled t; with covariates, Freedman-Lane).",
+                  options=(_STAT_PERM,), designs=_BOTH),
     ProcedureInfo("permutation-stepdown", "famwise.resample.procedures",
                   "permutation_stepdown", "resample", _ALL,
                   "Step-down max-T over permutations; more powerful than single-step.",
-                  options=(_STAT_PERM,)),
+                  options=(_STAT_PERM,), designs=_BOTH),
     ProcedureInfo("bootstrap-maxt", "famwise.resample.procedures",
                   "bootstrap_maxt", "resample", _ALL,
                   "Bootstrap-t max statistic with within-group resampling of "
@@ -238,10 +250,12 @@ CATALOGUE: dict[str, ProcedureInfo] = {p.name: p for p in [
                   "wild_bootstrap_maxt", "resample", _ALL,
                   "Max-t of heteroscedasticity-consistent (HC3) t statistics "
                   "calibrated by the wild bootstrap; unequal variances with "
-                  "blocks or covariates."),
+                  "blocks or covariates.",
+                  options=(_COVARIANCE, _WEIGHTS), designs=_BOTH),
     ProcedureInfo("wild-bootstrap-stepdown", "famwise.resample.wild",
                   "wild_bootstrap_stepdown", "resample", _ALL,
-                  "Step-down version of the wild-bootstrap max-t."),
+                  "Step-down version of the wild-bootstrap max-t.",
+                  options=(_COVARIANCE, _WEIGHTS), designs=_BOTH),
     ProcedureInfo("bh", "famwise.procedures.classical", "bh", "fdr", _ALL,
                   "Benjamini-Hochberg false discovery rate (not familywise "
                   "error) on pooled t; exploratory families.", designs=_MODEL),
