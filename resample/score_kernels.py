@@ -264,6 +264,9 @@ def placement_point_chunk(block_ptr, lab0, n, mode, pa, pb, fixed_v, se2_floor, 
     cnt = np.empty(k)
     tie = np.zeros(k)
     present = np.empty(k, dtype=np.int64)
+    icnt = np.zeros(k, dtype=np.int64)
+    ip1 = np.zeros(k * k, dtype=np.int64)
+    ip2 = np.zeros(k * k, dtype=np.int64)
     nf = n.astype(np.float64)
     state, inc = _pcg_init(rng_state[0], rng_state[1])
     for b in range(size):
@@ -275,27 +278,35 @@ def placement_point_chunk(block_ptr, lab0, n, mode, pa, pb, fixed_v, se2_floor, 
                 acc_q2[c, g] = 0.0
                 mx[c, g] = 0.0
         if untied:
+            # integer counters: a one-cycle add, where a float add would chain
+            # four cycles through memory when neighbours share a group
+            for c in range(k):
+                icnt[c] = 0
+            for e in range(k * k):
+                ip1[e] = 0
+                ip2[e] = 0
             i = big_n - 1
             while i >= 0:
                 if i > 0:
                     state = _fy_step(lab, i, state, inc)
                 c = np.int64(lab[i])
+                base = c * k
                 if bm:
                     for g in range(k):
-                        cg = cnt[g]
-                        acc_a[c, g] += cg
-                        acc_q2[c, g] += cg * cg
+                        cg = icnt[g]
+                        ip1[base + g] += cg
+                        ip2[base + g] += cg * cg
                 else:
                     for g in range(k):
-                        acc_a[c, g] += cnt[g]
-                cnt[c] += 1.0
+                        ip1[base + g] += icnt[g]
+                icnt[c] += 1
                 i -= 1
             for c in range(k):
                 for g in range(k):
-                    p1 = acc_a[c, g]
+                    p1 = np.float64(ip1[c * k + g])
                     acc_a[c, g] = 2.0 * p1 - nf[c] * nf[g]
                     if bm:
-                        acc_q2[c, g] = (4.0 * acc_q2[c, g] - 4.0 * nf[g] * p1
+                        acc_q2[c, g] = (4.0 * np.float64(ip2[c * k + g]) - 4.0 * nf[g] * p1
                                         + nf[c] * nf[g] * nf[g])
         else:
             hi = big_n
