@@ -42,6 +42,36 @@ Defaults and where they come from:
   about ten per group (Hollander, Wolfe & Chicken, *Nonparametric
   Statistical Methods*, 3rd ed., ch. 4, from memory); the permutation
   version is exact at any size, so the threshold only trades time.
+* ``gross_outlier_route = True``: when the outlier check finds a gross
+  value (modified z above ``gross_outlier_z``) that stands apart (without
+  it the rest passes the shape checks; far values in the tail of skewed
+  data are left to the skewed-data route), the route does not use a
+  procedure on means, whose estimate and interval one value can dominate:
+  pairwise families go to Yuen's trimmed means when every group holding a
+  gross value has at least ``trimmed_min_n`` values (so 20% trimming cuts
+  at least one from each end), otherwise to ranks.  Our policy (no
+  source); the trimming fraction 0.2 is Wilcox's usual choice
+  (*Introduction to Robust Estimation and Hypothesis Testing*, from
+  memory).
+* ``trimmed_min_n = 5``: floor(0.2 n) >= 1 from n = 5.
+* ``censored_warn_percent = 50.0``: a group with more non-detects than this
+  share carries little information on its own; the route warns.  Common
+  practice, no source (Helsel 2012 discusses 50% and 80% as points where
+  the methods' behaviour changes; from memory).
+* ``peto_when_limits_differ = True``: with non-detects at different
+  limits in different groups, the route uses the Peto–Prentice scores
+  (``peto-maxt``), whose weights depend less on the censoring pattern than
+  Gehan's (Prentice & Marek 1979, *Biometrics* 35:861-867; Helsel 2012
+  prefers the Peto–Prentice form; both from memory); with one limit,
+  Gehan's (``gehan-maxt``), which is then the Wilcoxon statistic with the
+  non-detects tied below the limit.
+* ``log_slope_tolerance = 0.35`` with ``log_min_groups = 3``: the route
+  proposes the log scale when the slope of log SD on log mean over at least
+  three groups lies within 0.35 of 1 (Tukey's spread-level plot; Box & Cox
+  1964: the power 1 - slope stabilises the spread, 0 being the log).  The
+  tolerance is our policy (no source): the slope of a few groups' SDs is
+  noisy, and powers between -0.35 and 0.35 differ little from the log in
+  practice.
 """
 
 from __future__ import annotations
@@ -74,6 +104,12 @@ class Policy:
     unbalanced_ratio: float = 1.5
     calibration_replicates: int = 3000
     rank_permutation_below: int = 10
+    gross_outlier_route: bool = True
+    trimmed_min_n: int = 5
+    censored_warn_percent: float = 50.0
+    peto_when_limits_differ: bool = True
+    log_slope_tolerance: float = 0.35
+    log_min_groups: int = 3
 
     def replace(self, **changes) -> "Policy":
         """Return a copy with ``changes`` applied (names checked)."""

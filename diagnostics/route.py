@@ -19,6 +19,9 @@
 3. shape and spread fine -> classical: Tukey–Kramer for all pairs, Dunnett
    against a reference, and for contrasts the shorter of Šidák and Scheffé.
 
+Before these: data with non-detects take the censored route, and data with
+gross values the robust route (:mod:`famwise.diagnostics.robust_route`).
+
 Groups under ``policy.small_group`` observations add a warning.  A user can
 force a procedure; the route then says so and lists the checks that argue
 against it.  Every alternative set aside is listed with the reason.
@@ -53,7 +56,7 @@ class Alternative:
 class Route:
     """The chosen procedure, who chose it, and the reasons."""
 
-    route: str                       # "classical" | "unequal" | "resample" | "fdr"
+    route: str     # "classical" | "unequal" | "resample" | "fdr" | "censored" | "robust"
     procedure: str
     chosen_by: str                   # "policy" | "user"
     reasons: tuple[str, ...]
@@ -62,6 +65,7 @@ class Route:
     warnings: tuple[str, ...] = ()
     calibration: dict | None = field(default=None)
     crosscheck: str | None = None    # the independent second procedure
+    proposal: str | None = None      # a change of scale the checks suggest
 
     def to_dict(self) -> dict:
         return {"route": self.route, "procedure": self.procedure, "chosen_by": self.chosen_by,
@@ -69,7 +73,8 @@ class Route:
                 "alternatives": [{"procedure": a.procedure, "why": a.why}
                                  for a in self.alternatives],
                 "against": list(self.against), "warnings": list(self.warnings),
-                "calibration": self.calibration, "crosscheck": self.crosscheck}
+                "calibration": self.calibration, "crosscheck": self.crosscheck,
+                "proposal": self.proposal}
 
 
 def shape_poor(findings: Findings) -> list[str]:
@@ -113,6 +118,8 @@ def crosscheck_procedure(procedure: str, family: Family) -> str:
     classical -> permutation; unequal-variance -> bootstrap; resampling -> its
     closed-form counterpart; ranks -> Brunner-Munzel (or, from it, Steel-Dwass
     or Steel)."""
+    if procedure in ("gehan-maxt", "peto-maxt"):
+        return "peto-maxt" if procedure == "gehan-maxt" else "gehan-maxt"
     route = CATALOGUE[procedure].route
     if route in ("classical", "fdr"):
         return "permutation-maxt"
@@ -170,9 +177,43 @@ def _unequal_all_pairs(layout, policy, alpha, seed):
 
 
 def choose(findings: Findings, family: Family, layout: Layout, policy: Policy | None = None,
-           procedure: str = "auto", alpha: float = 0.05, seed: int | None = 0) -> Route:
-    """Choose the procedure for ``family`` from the checks, or record a user's choice."""
-    policy = policy or Policy()
+           procedure: str = "auto", alpha: float = 0.05, seed: int | None = 0,
+           scale: str | None = None) -> Route:
+    """Choose the procedure for ``family`` from the checks, or record a user's choice.
+
+    ``scale`` is the transform already applied ("log" or None); on the
+    original scale, a spread-level slope near 1 adds a proposal of the log
+    scale (:func:`log_proposal`).
+    """
+    route = _choose(findings, family, layout, policy or Policy(), procedure, alpha, seed)
+    if scale is None:
+        proposal = log_proposal(layout, policy or Policy())
+        if proposal:
+            import dataclasses
+            route = dataclasses.replace(route, proposal=proposal)
+    return route
+
+
+def log_proposal(layout: Layout, policy: Policy) -> str | None:
+    """The sentence proposing transform='log' when spread grows with the level."""
+    if layout.has_censoring or np.any(layout.values <= 0):
+        return None
+    from ..model.scale import spread_level_slope
+    fit = spread_level_slope(layout)
+    if fit is None or fit[1] < policy.log_min_groups:
+        return None
+    slope, used = fit
+    if abs(slope - 1.0) > policy.log_slope_tolerance:
+        return None
+    return (f"The spread grows in proportion to the level (slope of log SD on log mean "
+            f"{slope:.2f} over {used} groups; near 1 means the log scale equalises the "
+            f"spreads, Box & Cox 1964): consider transform='log' (--transform log), which "
+            f"compares ratios of geometric means; famwise does not change the scale on "
+            f"its own.")
+
+
+def _choose(findings: Findings, family: Family, layout: Layout, policy: Policy,
+            procedure: str, alpha: float, seed) -> Route:
     poor, unequal = shape_poor(findings), spread_unequal(findings)
     warnings = []
     small = findings.get("small-groups")
@@ -203,9 +244,29 @@ def choose(findings: Findings, family: Family, layout: Layout, policy: Policy | 
         if procedure == "bh":
             against.append("Benjamini-Hochberg controls the false discovery rate, not the "
                            "familywise error rate")
+        from .robust_route import gross_values
+        robust = ("gehan-maxt", "peto-maxt", "yuen-holm", "steel-dwass", "steel", "dunn-holm",
+                  "dunn-bonferroni", "brunner-munzel-maxt")
+        if procedure not in robust and gross_values(findings, policy):
+            against.append("gross values are present; a procedure on means lets one "
+                           "value dominate its estimate and intervals")
         return Route(info.route, procedure, "user", ("Chosen by the user.",), (),
                      tuple(against), tuple(warnings), None,
                      crosscheck_procedure(procedure, family))
+    from .robust_route import censored_route, gross_route, gross_values, isolated
+    if layout.has_censoring:
+        proc, why, alts, warn, second = censored_route(layout, family, policy)
+        return Route("censored", proc, "policy", tuple(why),
+                     tuple(Alternative(*a) for a in alts), (),
+                     tuple(warnings + warn), None, second)
+    gross = gross_values(findings, policy) if policy.gross_outlier_route else []
+    if gross and isolated(gross, layout, policy):
+        picked = gross_route(gross, layout, family, policy, unequal)
+        if picked is not None:
+            proc, why, alts, warn, second = picked
+            return Route("robust", proc, "policy", tuple(why),
+                         tuple(Alternative(*a) for a in alts), (),
+                         tuple(warnings + warn), None, second)
     reasons, alternatives, calibration = [], [], None
     n = layout.stats.n
     fragile = (policy.welch_when_small_unbalanced and not unequal

@@ -126,7 +126,7 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
             margin=None, resamples=9999, seed=None, n_jobs=1, backend="threads",
             scheduler=None, policy=None, crosscheck=True, progress=None,
             calibrate=False, command=None, block=None, covariates=None,
-            options=None, **read_options) -> Comparison:
+            options=None, transform=None, log_offset=None, **read_options) -> Comparison:
     """Compare groups: check the data, choose a procedure, run it and cross-check it.
 
     Parameters
@@ -163,6 +163,13 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
         Routing thresholds (see :class:`famwise.diagnostics.Policy`).
     crosscheck : bool, default=True
         Run the independent second route.
+    transform : {None, "log"}, default=None
+        ``"log"``: analyse ``log(x + log_offset)`` and add the ratio columns
+        ``ratio``, ``ratio_lower``, ``ratio_upper`` (ratios of geometric
+        means; see :mod:`famwise.model.scale`).  Values at or below zero are
+        refused, naming their rows, unless ``log_offset`` lifts them.
+    log_offset : float, optional
+        A non-negative constant added before the log (recorded).
     calibrate : bool or int, default=False
         Also estimate every candidate's familywise error, and the automatic
         pipeline's, at the observed design (an int sets the replicates;
@@ -210,12 +217,24 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
             f"use a two-sided test for {family!r}")
     pol = _policy(policy)
     seed = _seed(seed)
+    from .model.scale import add_ratio_columns, check_transform, log_layout
+    scale = check_transform(transform, log_offset)
+    if scale.name is not None and margin is not None:
+        raise FamwiseInputError("a margin is a difference on the original scale; with "
+                                "transform='log' compare the ratio columns with your margin "
+                                "as a ratio instead")
     intake = load_data(data, response, group, block=block, covariates=covariates,
                        **read_options)
     layout, ledger = intake.layout, intake.ledger
+    original = layout
+    if scale.name is not None:
+        if layout.design is not None:
+            raise FamwiseInputError("transform='log' is not yet available with blocks or "
+                                    "covariates; take the log of the column first")
+        layout = log_layout(layout, scale)
     fam = build_family(layout.labels, family, reference, contrasts)
     findings = run_checks(layout, pol)
-    route = choose(findings, fam, layout, pol, procedure, alpha, seed=seed)
+    route = choose(findings, fam, layout, pol, procedure, alpha, seed=seed, scale=scale.name)
     for w in route.warnings:
         warnings.warn(SmallGroupWarning(w), stacklevel=2)
     resampling_options = dict(resamples=resamples, seed=seed, n_jobs=n_jobs, backend=backend,
@@ -240,22 +259,44 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
                                statistic=statistic)
     if margin is not None:
         table = table.assign(practical=classify(table["ci_lower"], table["ci_upper"], margin))
-    groups = _groups(layout)
+    if scale.name is not None:
+        table = add_ratio_columns(table)
+    groups = _groups(original)
+    if scale.name is not None:
+        groups = groups.assign(geometric_mean=np.exp(layout.stats.mean) - scale.offset)
     if fam.kind == "all-pairs":
         from .procedures.letters import compact_letters
-        means = groups["adjusted_mean" if layout.design is not None else "mean"].to_numpy()
+        means = groups["adjusted_mean" if layout.design is not None else "mean"].to_numpy(
+            dtype=float)
+        if scale.name is not None:
+            means = layout.stats.mean.copy()
+        # A group of non-detects only has no Kaplan-Meier mean; order it by its limit.
+        means = np.where(np.isfinite(means), means, groups["min"].to_numpy(dtype=float))
         groups = groups.assign(letters=compact_letters(means, table, list(layout.labels)))
     calibration = None
+    if calibrate and layout.has_censoring:
+        warnings.warn(SmallGroupWarning(
+            "calibration simulates procedures on means under normal errors; it is not "
+            "available for data with non-detects, so none was run"), stacklevel=2)
+        calibrate = False
     if calibrate:
         from .diagnostics.calibrate import calibrate_layout
         reps = 2000 if calibrate is True else int(calibrate)
         calibration = calibrate_layout(layout, fam, alpha=alpha, replicates=reps, seed=seed,
                                        policy=pol)
     from .procedures.omnibus import omnibus_test
-    omnibus = omnibus_test(route.route, layout)
+    omnibus = omnibus_test(route.route, layout, table)
+    if command is None:
+        command = _reproduce(data, response, group, fam, alpha, route,
+                             table.attrs.get("resampling"), seed, block, covariates,
+                             options or {}, read_options)
+        if scale.name is not None:
+            command += " --transform log" + (f" --log-offset {scale.offset:g}"
+                                             if scale.offset else "")
     record = _record(intake, data, fam, alpha, margin, findings, pol, route, check, table,
-                     command, response, group, seed, block, covariates, options)
-    record = dataclasses.replace(record, omnibus=omnibus.to_dict())
+                     command, response, group, seed, block, covariates, options, read_options)
+    record = dataclasses.replace(record, omnibus=omnibus.to_dict(),
+                                 transform=scale.to_dict())
     return Comparison(groups=groups, comparisons=table, decision=record, crosscheck=check,
                       ledger=ledger, findings=findings, layout=layout, family=fam,
                       calibration=calibration, omnibus=omnibus)
@@ -317,7 +358,7 @@ def _run(name, layout, fam, alpha, alternative, resampling_options, own=None) ->
 
 def _record(intake, data, fam: Family, alpha, margin, findings, pol, route: Route, check,
             table, command, response, group, seed, block=None, covariates=None,
-            options=None) -> DecisionRecord:
+            options=None, read_options=None) -> DecisionRecord:
     led = intake.ledger
     is_file = isinstance(data, (str, os.PathLike))
     resampling = table.attrs.get("resampling")
@@ -327,7 +368,7 @@ def _record(intake, data, fam: Family, alpha, margin, findings, pol, route: Rout
                                      if u])
     if command is None:
         command = _reproduce(data, response, group, fam, alpha, route, resampling, seed,
-                             block, covariates, options or {})
+                             block, covariates, options or {}, read_options or {})
     model = None
     if intake.layout.design is not None:
         from .diagnostics.model_route import model_summary
@@ -343,7 +384,28 @@ def _record(intake, data, fam: Family, alpha, margin, findings, pol, route: Rout
         alpha=alpha, margin=margin, checks=findings.to_records(), policy=pol.to_dict(),
         route=route.to_dict(), crosscheck=check.to_dict() if check is not None else None,
         resampling=resampling, environment=environment(), command=command, model=model,
-        options=dict(options or {}))
+        options=dict(options or {}),
+        censoring=_censoring(intake, table, read_options or {}))
+
+
+def _censoring(intake, table, read_options) -> dict | None:
+    """The decision record's account of non-detects (None when there were none)."""
+    led, lay = intake.ledger, intake.layout
+    mode = read_options.get("nondetects", "keep")
+    dropped = sum(d.reason in ("below-limit", "not-detected") for d in led.dropped)
+    if not lay.has_censoring and not dropped:
+        return None
+    return {"nondetects": mode,
+            "detection_limit": read_options.get("detection_limit"),
+            "kept_censored": len(led.censored),
+            "kept_censored_by_group": {lab: int(lay.censored_flags[lay.codes == g].sum())
+                                       for g, lab in enumerate(lay.labels)},
+            "set_aside": dropped,
+            "sentence": (f"{len(led.censored)} non-detect(s) kept as left-censored values"
+                         if mode == "keep" else
+                         f"{dropped} non-detect(s) set aside on request (nondetects='drop'); "
+                         f"summaries of the remaining values are biased upward"),
+            "sensitivity": table.attrs.get("sensitivity")}
 
 
 def _columns_option(value) -> str:
@@ -351,7 +413,7 @@ def _columns_option(value) -> str:
 
 
 def _reproduce(data, response, group, fam, alpha, route, resampling, seed, block=None,
-               covariates=None, options=None) -> str:
+               covariates=None, options=None, read_options=None) -> str:
     source = os.fspath(data) if isinstance(data, (str, os.PathLike)) else "<DataFrame>"
     parts = ["famwise", "compare", source]
     if response:
@@ -374,4 +436,9 @@ def _reproduce(data, response, group, fam, alpha, route, resampling, seed, block
     if resampling is not None:
         parts += ["--resamples", str(resampling["resamples"])]
     parts += ["--seed", str(seed)]
+    read_options = read_options or {}
+    if read_options.get("detection_limit") is not None:
+        parts += ["--detection-limit", str(read_options["detection_limit"])]
+    if read_options.get("nondetects", "keep") != "keep":
+        parts += ["--nondetects", str(read_options["nondetects"])]
     return shlex.join(parts)

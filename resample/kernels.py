@@ -202,6 +202,25 @@ def _family_stats(mean, vm, row_ptr, col, w, w2, se2_floor, sign, two_sided,
     return _tally(ustat, thr, order, hits_marginal, hits_stepdown, stepdown)
 
 
+_HALL_Q = 1.0 - 1.0 / np.sqrt(2.0)
+
+
+@njit(cache=True, nogil=True, inline="always")
+def _hall_map(t, a):
+    """Hall's cubic where its slope is at least 1/2, linear beyond (the same
+    map as :func:`famwise.resample.statistics.hall_transform`)."""
+    if abs(a) < 1e-12:
+        return t + a / 6.0
+    tau = 3.0 * _HALL_Q / abs(a)
+    if t < -tau:
+        b = 1.0 - a * tau / 3.0
+        return (b * b * b - 1.0) / a + a / 6.0 + b * b * (t + tau)
+    if t > tau:
+        b = 1.0 + a * tau / 3.0
+        return (b * b * b - 1.0) / a + a / 6.0 + b * b * (t - tau)
+    return t + a * t * t / 3.0 + a * a * t * t * t / 27.0 + a / 6.0
+
+
 @njit(cache=True, nogil=True)
 def _family_stats_hall(mean, vm, c3, a_max, row_ptr, col, w, w2, w3, se2_floor, sign,
                        two_sided, thr, order, ustat, hits_marginal, hits_stepdown,
@@ -210,7 +229,8 @@ def _family_stats_hall(mean, vm, c3, a_max, row_ptr, col, w, w2, w3, se2_floor, 
 
     ``c3[g]`` is the third cumulant of group g's mean; a_j = sum_e w_e^3
     c3[col_e] / v2_j^1.5, bounded by ``a_max``, and T_j = t + a t^2/3 +
-    a^2 t^3/27 + a/6 (:mod:`famwise.resample.statistics`).
+    a^2 t^3/27 + a/6 where that cubic's slope is at least 1/2, linear
+    beyond (:func:`_hall_map`; :mod:`famwise.resample.statistics`).
     """
     m = row_ptr.size - 1
     for j in range(m):
@@ -230,7 +250,7 @@ def _family_stats_hall(mean, vm, c3, a_max, row_ptr, col, w, w2, w3, se2_floor, 
             a = a_max
         elif a < -a_max:
             a = -a_max
-        t = t + a * t * t / 3.0 + a * a * t * t * t / 27.0 + a / 6.0
+        t = _hall_map(t, a)
         ustat[j] = abs(t) if two_sided else sign * t
     return _tally(ustat, thr, order, hits_marginal, hits_stepdown, stepdown)
 

@@ -299,6 +299,30 @@ def _centred(layout: Layout) -> Layout:
                   source=layout.source)
 
 
+#: An interval of bootstrap-hall whose half-width exceeds this many times the
+#: widest difference the data can show (range of all values, times half the
+#: contrast's sum of |weights|) is withheld.  Every difference of two observed
+#: values lies within one range; a half-width of twice that would claim the
+#: means may differ by more than any two observations do, twice over, which
+#: only the correction term, not the data, can produce.
+WITHHOLD_FACTOR = 2.0
+
+
+def _withhold_absurd(layout, family, est, lower, upper):
+    """Replace intervals wider than WITHHOLD_FACTOR times the data's reach by NaN."""
+    span = float(np.max(layout.values) - np.min(layout.values))
+    reach = span * np.abs(np.asarray(family.weights, dtype=np.float64)).sum(axis=1) / 2.0
+    with np.errstate(invalid="ignore"):
+        wide = (np.isfinite(lower) & ((est - lower) > WITHHOLD_FACTOR * reach)) | (
+            np.isfinite(upper) & ((upper - est) > WITHHOLD_FACTOR * reach))
+    if not wide.any():
+        return lower, upper, []
+    lower, upper = lower.copy(), upper.copy()
+    lower[wide] = np.nan
+    upper[wide] = np.nan
+    return lower, upper, [family.names[j] for j in np.flatnonzero(wide)]
+
+
 def _run(procedure, method, stepdown, layout, family, *, alpha, resamples, seed,
          n_jobs, backend, statistic, trim, alternative, chunk_size, progress,
          scheduler, max_resamples, statistics_allowed, blocks=None, covariates=None,
@@ -348,6 +372,9 @@ def _run(procedure, method, stepdown, layout, family, *, alpha, resamples, seed,
     with np.errstate(invalid="ignore"):
         lower = est - t_hi * se if opts.alternative != "less" else np.full(family.m, -np.inf)
         upper = est - t_lo * se if opts.alternative != "greater" else np.full(family.m, np.inf)
+    withheld = []
+    if obs.skew is not None:
+        lower, upper, withheld = _withhold_absurd(layout, family, est, lower, upper)
     table = comparisons_table(
         family, difference=est, std_error=se, df=np.inf, statistic=obs.statistic,
         p_unadjusted=p_marginal, p_adjusted=p_adjusted, ci_lower=lower,
@@ -355,6 +382,13 @@ def _run(procedure, method, stepdown, layout, family, *, alpha, resamples, seed,
         unsettled=unsettled)
     # comparisons_table stores numeric extras as float; keep this one boolean.
     table["unsettled"] = np.asarray(unsettled, dtype=bool)
+    if withheld:
+        table.attrs["intervals_withheld"] = {
+            "comparisons": withheld,
+            "reason": (f"the skewness-corrected interval reached more than "
+                       f"{WITHHOLD_FACTOR:g} times the widest difference the data can show "
+                       f"(the range of all values) from its estimate, so the correction, "
+                       f"not the data, would set it; the decision (p_adjusted) stands")}
     table.attrs["resampling"] = {
         "method": method,
         "stepdown": bool(stepdown),

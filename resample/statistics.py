@@ -13,7 +13,8 @@ the trimmed mean (Yuen), and its squared standard error is
   winsorized variance and ``h_g = n_g - 2 floor(trim n_g)``;
 * Welch with Hall's skewness-removing transformation ("welch-hall"): the
   Welch ``t_j`` becomes ``T_j = t_j + a_j t_j**2 / 3 + a_j**2 t_j**3 / 27
-  + a_j / 6`` (Hall 1992, *J. R. Statist. Soc. B* 54:221–228,
+  + a_j / 6`` where that cubic's slope stays at or above 1/2, continued as a
+  straight line beyond (:func:`hall_transform`; Hall 1992, *J. R. Statist. Soc. B* 54:221–228,
   doi:10.1111/j.2517-6161.1992.tb01876.x; the one-sample form, from
   memory), where ``a_j = K3_j / V_j**1.5`` is the estimated skewness of the
   comparison's estimate: ``V_j = sum_g W[j, g]**2 v_g`` and ``K3_j =
@@ -50,7 +51,7 @@ from ..core.layout import Layout
 __all__ = ["STATISTICS", "ALTERNATIVES", "FamilyWeights", "ObservedStatistics",
            "family_weights", "group_terms", "trimmed_terms", "observed_statistics",
            "pooled_skewness", "ssq_floor", "hall_skew", "hall_transform", "hall_inverse",
-           "HALL_A_MAX"]
+           "hall_cubic", "HALL_A_MAX", "HALL_Q"]
 
 STATISTICS = ("welch", "pooled", "yuen", "welch-hall")
 ALTERNATIVES = ("two-sided", "greater", "less")
@@ -166,17 +167,67 @@ def hall_skew(weights, var, n, gamma, v2):
     return np.clip(a, -HALL_A_MAX, HALL_A_MAX)
 
 
-def hall_transform(t, a):
-    """Hall's monotone cubic ``t + a t^2/3 + a^2 t^3/27 + a/6``."""
+#: Where the cubic is kept: while its slope (1 + a t / 3)**2 stays at or above
+#: one half, i.e. |t| <= HALL_Q * 3 / |a|; beyond it the map continues as a
+#: straight line with the slope at the end (see :func:`hall_transform`).
+HALL_Q = 1.0 - 1.0 / np.sqrt(2.0)
+
+
+def _hall_ends(a):
+    """Ends t_L < t_R of the cubic's part, its values there and its end slopes."""
+    a = np.asarray(a, dtype=np.float64)
+    tiny = np.abs(a) < 1e-12
+    safe = np.where(tiny, 1.0, a)
+    tau = np.where(tiny, np.inf, 3.0 * HALL_Q / np.abs(safe))
+    t_lo, t_hi = -tau, tau
+    with np.errstate(invalid="ignore"):
+        b_lo = 1.0 + safe * np.where(tiny, 0.0, t_lo) / 3.0
+        b_hi = 1.0 + safe * np.where(tiny, 0.0, t_hi) / 3.0
+    y_lo = np.where(tiny, -np.inf, (b_lo ** 3 - 1.0) / safe + a / 6.0)
+    y_hi = np.where(tiny, np.inf, (b_hi ** 3 - 1.0) / safe + a / 6.0)
+    return t_lo, t_hi, y_lo, y_hi, b_lo * b_lo, b_hi * b_hi
+
+
+def hall_cubic(t, a):
+    """Hall's (1992) cubic ``t + a t^2/3 + a^2 t^3/27 + a/6`` on its own."""
     return t + a * t * t / 3.0 + a * a * t * t * t / 27.0 + a / 6.0
+
+
+def hall_transform(t, a):
+    """Hall's cubic where its slope stays at or above 1/2, linear beyond.
+
+    Hall's (1992) cubic ``t + a t^2/3 + a^2 t^3/27 + a/6`` is monotone, but
+    its slope ``(1 + a t / 3)**2`` falls to zero at ``t = -3 / a`` and grows
+    like ``t**2`` on the other side.  Bootstrapped, the growth turns the rare
+    resample with a tiny standard error into a huge max statistic, and the
+    flat stretch makes the inverse at the critical value enormous: with a
+    gross value in a small group the intervals came out 30-60 times wider
+    than the differences.  So the cubic is kept on ``|t| <= 3 q / |a|``
+    (``q = 1 - 1/sqrt(2)``, where the slope on the flat side is exactly 1/2)
+    and continued beyond as a straight line with the cubic's slope at the
+    end (1/2 on one side, (1 + q)**2 = 1.67 on the other): strictly
+    increasing, continuous with a continuous slope, its inverse magnifies by
+    at most 2, and a resampled t enters the max at most 1.67-fold.  In the
+    central part, where the skewness correction does its work at
+    ``|a| <= 0.3`` (|t| up to 2.9), the map is Hall's.  The linear
+    continuation is our construction (no source).
+    """
+    t = np.asarray(t, dtype=np.float64)
+    a = np.asarray(a, dtype=np.float64)
+    t_lo, t_hi, y_lo, y_hi, s_lo, s_hi = _hall_ends(a)
+    with np.errstate(invalid="ignore"):
+        out = np.where(t < t_lo, y_lo + s_lo * (t - t_lo),
+                       np.where(t > t_hi, y_hi + s_hi * (t - t_hi), hall_cubic(t, a)))
+    return out
 
 
 def hall_inverse(y, a):
     """The ``t`` with ``hall_transform(t, a) == y``.
 
-    ``hall_transform(t, a) = ((1 + a t / 3)**3 - 1) / a + a / 6``, so
+    On the cubic's part ``((1 + a t / 3)**3 - 1) / a + a / 6 = y``, so
     ``t = 3 (cbrt(1 + a (y - a / 6)) - 1) / a``; near a = 0 the two-term
     series ``u - a u^2 / 3`` (u = y - a / 6) avoids the cancellation.
+    Beyond the ends, the inverse of the straight lines.
     """
     y, a = np.broadcast_arrays(np.asarray(y, dtype=np.float64),
                                np.asarray(a, dtype=np.float64))
@@ -185,7 +236,11 @@ def hall_inverse(y, a):
     safe = np.where(small, 1.0, a)
     with np.errstate(invalid="ignore", divide="ignore"):
         exact = 3.0 * (np.cbrt(1.0 + safe * u) - 1.0) / safe
-    return np.where(small, u - a * u * u / 3.0, exact)
+    cubic = np.where(small, u - a * u * u / 3.0, exact)
+    t_lo, t_hi, y_lo, y_hi, s_lo, s_hi = _hall_ends(a)
+    with np.errstate(invalid="ignore"):
+        return np.where(y < y_lo, t_lo + (y - y_lo) / s_lo,
+                        np.where(y > y_hi, t_hi + (y - y_hi) / s_hi, cubic))
 
 
 def ssq_floor(layout: Layout) -> np.ndarray:

@@ -87,7 +87,10 @@ def test_water_csv_is_what_the_generator_writes():
     assert frame["station"].value_counts().min() == 3
     assert len(ANALYTES) == 12
     cells = frame[list(ANALYTES)]
-    assert (cells == "<DL").to_numpy().sum() > 10 and (cells == "").to_numpy().sum() >= 3
+    written = cells.apply(lambda col: col.str.startswith("<"))
+    assert written.to_numpy().sum() > 10 and (cells == "").to_numpy().sum() >= 3
+    # Lead has two detection limits (a new instrument for the last campaign).
+    assert set(cells.loc[written["lead_ug_per_L"], "lead_ug_per_L"]) == {"<0.5", "<0.2"}
 
 
 def test_every_analyte_is_a_task_and_none_vanishes(water):
@@ -96,13 +99,12 @@ def test_every_analyte_is_a_task_and_none_vanishes(water):
     skipped = {c["column"] for c in water.record["input"]["columns_not_used"]}
     assert skipped == {"sample_id", "campaign", "sampled_on"}
     lead = t.set_index("response").loc["lead_ug_per_L"]
-    # Two of Greystane Reach's three lead results are "<DL": one usable value.
-    assert lead["status"] == "input-error"
-    assert "Greystane Reach" in lead["reason"] and "only 1 usable value" in lead["reason"]
-    assert "\n" not in lead["reason"]
-    assert pd.isna(lead["omnibus_q"]) and lead["omnibus_reject"] is pd.NA
+    # Two of Greystane Reach's three lead results are non-detects, kept as
+    # left-censored values: lead is analysable, on the censored route.
+    assert lead["status"] == "ok" and lead["route"] == "censored"
+    assert lead["procedure"] == "peto-maxt"           # two limits, 0.5 and 0.2
     ok = t[t["status"] == "ok"]
-    assert len(ok) == 11
+    assert len(ok) == 12
     assert (ok["n_read"] == ok["n_used"] + ok["n_set_aside"]).all()
     assert (ok["n_read"] == 68).all()                  # every data row of the file
 
@@ -113,7 +115,7 @@ def test_water_screen_is_bh_over_the_omnibus_p_values(water):
     ref = stats.false_discovery_control(t.loc[ok, "omnibus_p"], method="bh")
     np.testing.assert_allclose(t.loc[ok, "omnibus_q"], ref, rtol=1e-13)
     assert (t.loc[ok, "omnibus_reject"] == (ref <= 0.05)).all()
-    assert water.record["fdr"]["family_size"] == 11
+    assert water.record["fdr"]["family_size"] == 12
 
 
 def test_omnibus_test_follows_the_route(water):
@@ -124,6 +126,13 @@ def test_omnibus_test_follows_the_route(water):
         if r.route == "classical":
             assert r.omnibus == "anova-f"
             ref = stats.f_oneway(*groups).pvalue               # scipy reference
+        elif r.route == "censored":
+            # The route's own familywise test of the complete null (our choice).
+            assert r.omnibus == "min-adjusted-p"
+            ref = res.comparisons["p_adjusted"].min()
+        elif r.route in ("robust", "ranks"):
+            assert r.omnibus == "kruskal-wallis"
+            ref = stats.kruskal(*groups).pvalue                  # scipy reference
         else:
             assert r.route in ("unequal", "resample") and r.omnibus == "welch-anova"
             ref = stats.f_oneway(*groups, equal_var=False).pvalue   # scipy >= 1.15 Welch
@@ -210,11 +219,11 @@ def test_strata_in_order_with_failures_kept_and_rows_accounted():
     assert list(zip(t["response"], t["stratum"])) == [
         (r, y) for r in ("ph", "iron", "silt") for y in ("2023", "2024", "2025")]
     bad = t[t["status"] != "ok"].set_index(["response", "stratum"])
-    # 2025 holds one sample per site; silt holds no numbers at all.
+    # 2025 holds one sample per site; silt holds only "<DL" with no limit given.
     assert set(bad.index) == {("ph", "2025"), ("iron", "2025"), ("silt", "2023"),
                               ("silt", "2024"), ("silt", "2025")}
     assert "(year = '2025')" in bad.loc[("ph", "2025"), "reason"]
-    assert "no numeric values" in bad.loc[("silt", "2023"), "reason"]
+    assert "'<DL' without a number" in bad.loc[("silt", "2023"), "reason"]
     assert res.record["input"]["rows_without_stratum"] == 1
     # A stratum's task equals compare() on that stratum's rows; rows keep their numbers.
     sub = frame[frame["year"] == "2024"]
@@ -347,14 +356,14 @@ def test_cli_batch_formats_and_exit_codes(tmp_path, capsys):
             "station", "--seed", "4", "--resamples", str(B)]
     assert main(["batch", *args, "--format", "csv"]) == 0
     table = pd.read_csv(io.StringIO(capsys.readouterr().out), keep_default_na=False)
-    assert list(table["status"]) == ["ok", "input-error"]
+    assert list(table["status"]) == ["ok", "ok"]           # lead: non-detects kept
     assert main(["batch", *args, "--format", "json", "--fdr", "by"]) == 0
     doc = json.loads(capsys.readouterr().out)
     assert doc["fdr"]["method"] == "by" and doc["input"]["sha256"]
     out = tmp_path / "o"
     assert main(["batch", *args, "--out", str(out)]) == 0
     text = capsys.readouterr().out
-    assert "Could not run" in text and "qualified statistician" in text
+    assert "Could not run" not in text and "qualified statistician" in text
     assert main(["batch", *args, "--out", str(out)]) == 2
     assert "already holds" in capsys.readouterr().err
     assert main(["batch", str(WATER), "--all-numeric", "--group", "nope"]) == 2

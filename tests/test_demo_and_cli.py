@@ -29,13 +29,22 @@ def test_demo_csv_is_the_generator_output():
 
 
 def test_demo_ledger_shows_every_planted_problem():
-    intake = read(CSV, DEMO_RESPONSE, DEMO_GROUP, merge_spellings=True)
+    # The "n.d." cells need the laboratory's limit (1.0 mg/kg, in the notes).
+    with pytest.raises(Exception, match="row 16.*'n.d.' without a number"):
+        read(CSV, DEMO_RESPONSE, DEMO_GROUP, merge_spellings=True)
+    intake = read(CSV, DEMO_RESPONSE, DEMO_GROUP, merge_spellings=True, detection_limit=1.0)
     led = intake.ledger
     flooded = sum(f for _, _, f in MIXES.values())
-    assert led.counts() == {"not-detected": 3, "missing-response": flooded}
+    assert led.counts() == {"missing-response": flooded}
+    assert [(c.row, c.value, c.limit) for c in led.censored] == [
+        (16, "n.d.", 1.0), (21, "n.d.", 1.0), (50, "n.d.", 1.0)]
+    assert int(intake.layout.censored.sum()) == 3
+    dropped = read(CSV, DEMO_RESPONSE, DEMO_GROUP, merge_spellings=True, nondetects="drop")
+    assert dropped.ledger.counts() == {"not-detected": 3, "missing-response": flooded}
+    assert any("nondetects='drop'" in note for note in dropped.ledger.notes)
     assert led.read == sum(s for s, _, _ in MIXES.values())
     assert intake.layout.labels == tuple(MIXES)
-    n = dict(zip(intake.layout.labels, intake.layout.stats.n))
+    n = dict(zip(dropped.layout.labels, dropped.layout.stats.n))
     assert min(n.values()) == 4 and max(n.values()) == 12
     assert any("'cereal rye' (1 row)" in note for note in led.notes)
 
@@ -44,7 +53,8 @@ def test_demo_command_writes_its_files(tmp_path, capsys):
     out = tmp_path / "demo"
     assert main(["demo", "--out", str(out)]) == 0
     printed = capsys.readouterr().out
-    assert "47 of 53 rows used" in printed and "45 of 53 rows used" in printed
+    assert "50 of 53 rows used" in printed and "48 of 53 rows used" in printed
+    assert "censored route" in printed
     assert "comparing the mixes within blocks" in printed
     for folder in (out, out / "after-review", out / "blocked"):
         for name in ("comparisons.csv", "groups.csv", "ledger.csv", "decision.json",
@@ -78,13 +88,15 @@ def test_demo_command_writes_its_files(tmp_path, capsys):
 
 
 def test_inspect_formats(capsys):
-    args = ["inspect", str(CSV), "-r", DEMO_RESPONSE, "-g", DEMO_GROUP, "--merge-spellings"]
+    args = ["inspect", str(CSV), "-r", DEMO_RESPONSE, "-g", DEMO_GROUP, "--merge-spellings",
+            "--detection-limit", "1"]
     assert main(args) == 0
     text = capsys.readouterr().out
     assert "Rows" in text and "Groups" in text and "Crimson clover" in text
     assert main(args + ["--format", "json"]) == 0
     doc = json.loads(capsys.readouterr().out)
-    assert doc["ledger"]["used"] == 47 and len(doc["groups"]) == 6
+    assert doc["ledger"]["used"] == 50 and len(doc["groups"]) == 6
+    assert doc["ledger"]["kept_censored"] == 3
     assert main(args + ["--format", "csv"]) == 0
     lines = capsys.readouterr().out.splitlines()
     assert lines[0].startswith("group,n,mean,sd")
@@ -93,9 +105,10 @@ def test_inspect_formats(capsys):
 
 def test_inspect_warns_about_spellings_on_stderr(capsys):
     # Without --merge-spellings the typo makes a one-plot group: a warning, then an error.
-    assert main(["inspect", str(CSV), "-r", DEMO_RESPONSE, "-g", DEMO_GROUP]) == 2
+    assert main(["inspect", str(CSV), "-r", DEMO_RESPONSE, "-g", DEMO_GROUP,
+                 "--detection-limit", "1"]) == 2
     err = capsys.readouterr().err.splitlines()
-    assert err[0].startswith("famwise: warning: group labels 'Cereal rye' (8 rows), "
+    assert err[0].startswith("famwise: warning: group labels 'Cereal rye' (10 rows), "
                              "'cereal rye' (1 row)")
     assert err[1].startswith("famwise: error: group 'cereal rye'")
 

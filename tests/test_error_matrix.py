@@ -182,6 +182,112 @@ def test_simulated_designs_are_null_and_shaped():
     assert limit(2000) == pytest.approx(0.05 + 3 * 0.0048734, abs=1e-6)
 
 
+# --- wave 2: non-detects, the ratio scale, a gross value --------------------------
+#
+# Null designs for the censored, ratio and robust routes (invented workloads,
+# not reference values).  Lognormal data (sdlog 1) with every group drawn from
+# one distribution: with non-detects the complete null is "the same
+# distribution", and a rank test of censored values is exact when the
+# censoring does not depend on the group (one limit, or limits assigned
+# sample by sample regardless of group).
+
+_Q30 = float(np.exp(-0.5244005127080407))      # 30% quantile of lognormal(0, 1)
+_Q20 = float(np.exp(-0.8416212335729143))      # 20%
+_Q40 = float(np.exp(-0.2533471031357997))      # 40%  (scipy.stats.norm.ppf, 4 d.p.)
+
+
+def _censored_null(rng, limits):
+    groups, flags = [], []
+    for _ in range(6):
+        x = rng.lognormal(0.0, 1.0, 10)
+        lim = rng.choice(limits, 10)
+        c = x < lim
+        groups.append(np.where(c, lim, x))
+        flags.append(c)
+    return Layout.from_groups(groups, [f"g{i}" for i in range(6)], censored=flags), {}
+
+
+def _ratio_null(rng):
+    """Equal geometric means, sdlog growing from 0.3 to 0.9: the ratio-scale null."""
+    sdlog = (0.3, 0.4, 0.5, 0.6, 0.75, 0.9)
+    groups = [rng.lognormal(np.log(20.0), s, 10) for s in sdlog]
+    return Layout.from_groups(groups, [f"g{i}" for i in range(6)]), {"transform": "log"}
+
+
+def _gross_null(rng):
+    """Normal data, unbalanced, one value of the group of four typed without its
+    decimal point (ten times its value, about 90 SD out)."""
+    groups = [10.0 + rng.standard_normal(n) for n in UNBALANCED]
+    i = int(rng.integers(4))
+    groups[0][i] = 10.0 * groups[0][i]
+    return Layout.from_groups(groups, [f"g{i}" for i in range(6)]), {}
+
+
+WAVE2 = {
+    "30% non-detects at one limit (6 x 10, lognormal)":
+        lambda rng: _censored_null(rng, [_Q30]),
+    "two limits (20% and 40% quantiles), by sample (6 x 10, lognormal)":
+        lambda rng: _censored_null(rng, [_Q20, _Q40]),
+    "lognormal, spread growing with the level, transform='log' (6 x 10)": _ratio_null,
+    "one gross value (x10) in a group of 4 (n = 4..30, normal)": _gross_null,
+}
+WAVE2_SEEDS = {name: 8100 + i for i, name in enumerate(WAVE2)}
+
+
+def simulate_wave2(name, runs, seed, resamples=199):
+    rng = np.random.default_rng(seed)
+    hits, routes = 0, {}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        for r in range(runs):
+            layout, options = WAVE2[name](rng)
+            result = famwise.compare(layout, crosscheck=False, resamples=resamples, seed=r,
+                                     **options)
+            hits += bool(result.comparisons["reject"].any())
+            p = result.decision.route["procedure"]
+            routes[p] = routes.get(p, 0) + 1
+    return hits / runs, routes
+
+
+def simulate_wave2_all(runs=2000, n_jobs=2):
+    from joblib import Parallel, delayed
+    out = Parallel(n_jobs=n_jobs)(delayed(simulate_wave2)(name, runs, WAVE2_SEEDS[name])
+                                  for name in WAVE2)
+    return dict(zip(WAVE2, out))
+
+
+@pytest.mark.slow
+def test_wave2_error_matrix():
+    """The censored, ratio and robust routes under their complete nulls,
+    R = 2,000 each (several minutes: marked slow); criterion alpha + 3 SE."""
+    runs = 2000
+    results = simulate_wave2_all(runs)
+    print("\n" + _table([(name, rate, runs, routes) for name, (rate, routes)
+                          in results.items()]))
+    over = {name: rate for name, (rate, _) in results.items() if rate > limit(runs)}
+    assert not over, over
+
+
+def test_wave2_designs_take_their_routes():
+    """Cheap (default run): each wave-2 design goes where it is meant to."""
+    rng = np.random.default_rng(3)
+    expected = ["gehan-maxt", "peto-maxt", None, None]
+    for (name, make), proc in zip(WAVE2.items(), expected):
+        layout, options = make(rng)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            r = famwise.compare(layout, crosscheck=False, resamples=99, seed=1, **options)
+        route = r.decision.route
+        if proc:
+            assert route["procedure"] == proc, name
+        if "transform" in options:
+            assert "ratio" in r.comparisons
+        if "gross" in name:
+            assert route["route"] == "robust" and "row" in route["reasons"][0]
+
+
 if __name__ == "__main__":      # the full table, for the README
     print(_table([(name, rate, 2000, routes)
                   for name, (rate, routes) in simulate_all(2000).items()]))
+    print(_table([(name, rate, 2000, routes)
+                  for name, (rate, routes) in simulate_wave2_all(2000).items()]))

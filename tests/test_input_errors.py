@@ -63,12 +63,37 @@ FILE_CASES = [
      ["name the response column", "'nitrate'"]),
     ("same-column-twice", lambda t: (write(t, "a.csv", GOOD), {"group": "nitrate"}),
      ["response and group are the same column 'nitrate'"]),
-    ("no-numeric-values", lambda t: (write(t, "n.csv", "mix,nitrate\nA,n.d.\nB,<0.5\nB,x\n"), {}),
-     ["response column 'nitrate'", "no numeric values", "'n.d.'"]),
+    ("no-numeric-values", lambda t: (write(t, "n.csv", "mix,nitrate\nA,abc\nB,>5\nB,x\n"), {}),
+     ["response column 'nitrate'", "no numeric values", "'abc'"]),
+    ("nondetect-without-limit", lambda t: (write(
+        t, "nd.csv", "mix,nitrate\nA,1\nA,n.d.\nB,3\nB,4\n"), {}),
+     ["row 3", "'n.d.'", "without a number", "detection_limit=", "--detection-limit",
+      "nondetects='drop'"]),
+    ("less-than-without-number", lambda t: (write(
+        t, "lt.csv", "mix,nitrate\nA,1\nA,<\nB,3\nB,4\n"), {}),
+     ["row 3", "holds '<'", "followed by the limit as a number"]),
+    ("negative-limit", lambda t: (write(
+        t, "neg.csv", "mix,nitrate\nA,1\nA,<-0.5\nB,3\nB,4\n"), {}),
+     ["row 3", "'<-0.5'", "must be a positive number"]),
+    ("negative-limit-option", lambda t: (write(
+        t, "nego.csv", "mix,nitrate\nA,1\nA,ND\nB,3\nB,4\n"), {"detection_limit": -1}),
+     ["detection_limit must be a positive number", "-1"]),
+    ("limit-column-empty", lambda t: (write(
+        t, "lc.csv", "mix,nitrate,dl\nA,1,0.5\nA,ND,\nB,3,0.5\nB,4,0.5\n"),
+        {"detection_limit": "dl"}),
+     ["row 3", "'ND'", "detection-limit column 'dl' is empty there"]),
+    ("limit-column-unknown", lambda t: (write(t, "lu.csv", "mix,nitrate,dl\nA,1,0.5\nA,ND,\n"),
+                                        {"detection_limit": "DLs"}),
+     ["no detection-limit column 'DLs'", "did you mean 'dl'?"]),
+    ("all-nondetects", lambda t: (write(
+        t, "an.csv", "mix,nitrate\nA,<1\nA,<1\nB,<0.5\nB,<0.5\n"), {}),
+     ["every usable value of 'nitrate'", "non-detect"]),
+    ("bad-nondetects-option", lambda t: (write(t, "a.csv", GOOD), {"nondetects": "omit"}),
+     ["nondetects must be one of 'keep', 'drop'", "'omit'"]),
     ("one-group", lambda t: (write(t, "o.csv", "mix,nitrate\nA,1\nA,2\nA,3\n"), {}),
      ["fewer than two groups", "only 'A'"]),
     ("group-with-one-value", lambda t: (write(
-        t, "s.csv", "mix,nitrate\nA,1\nA,2\nB,3\nB,n.d.\nC,4\nC,5\n"), {}),
+        t, "s.csv", "mix,nitrate\nA,1\nA,2\nB,3\nB,abc\nC,4\nC,5\n"), {}),
      ["group 'B'", "only 1 usable value", "1 row set aside"]),
     ("all-identical", lambda t: (write(t, "i.csv", "mix,nitrate\nA,2\nA,2\nB,2\nB,2\n"), {}),
      ["all 4 usable values of 'nitrate'", "equal 2", "no variation"]),
@@ -94,7 +119,7 @@ FILE_CASES = [
      ["no sheet 'Plots 2052'", "did you mean 'Plots 2025'?"]),
     ("excel-sheet-index", lambda t: (excel(t), {"sheet": 3}),
      ["has 1 sheet(s)", "index 3 is out of range"]),
-    ("wide-no-numbers", lambda t: (write(t, "w.csv", "A,B\nx,y\nn.d.,z\n"), {"wide": True}),
+    ("wide-no-numbers", lambda t: (write(t, "w.csv", "A,B\nx,y\nq,z\n"), {"wide": True}),
      ["group columns", "hold no numeric values"]),
     ("wide-unnamed-column", lambda t: (write(t, "u.csv", "A,,B\n1,2,3\n4,5,6\n"), {"wide": True}),
      ["column without a header (column 2)"]),
@@ -121,7 +146,8 @@ def test_read_errors_name_the_problem(tmp_path, case, build, expected):
 
 
 CLI_CASES = ["file-not-found", "empty-file", "unknown-response-column", "no-numeric-values",
-             "group-with-one-value", "ragged-row", "not-utf8", "excel-sheet-missing"]
+             "group-with-one-value", "ragged-row", "not-utf8", "excel-sheet-missing",
+             "nondetect-without-limit"]
 
 
 @pytest.mark.parametrize("case", CLI_CASES)

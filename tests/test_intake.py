@@ -38,9 +38,9 @@ def test_messy_semicolon_decimal_comma_with_bom(tmp_path):
     # Without merging, 'rye' is a group of its own with one value: warned, then refused.
     with pytest.warns(LabelSpellingWarning, match=r"'Rye' \(2 rows\), 'rye' \(1 row\)"):
         with pytest.raises(FamwiseInputError, match="group 'rye' .* only 1 usable value"):
-            read(path, "nitrate", "mix", decimal=",")
+            read(path, "nitrate", "mix", decimal=",", nondetects="drop")
     intake = read(path, "nitrate", "mix", decimal=",", merge_spellings=True,
-                  order=["Fallow", "Rye"])
+                  order=["Fallow", "Rye"], nondetects="drop")
     lay, led = intake.layout, intake.ledger
     assert lay.labels == ("Fallow", "Rye")
     np.testing.assert_array_equal(lay.codes, [1, 0, 1, 0, 1])
@@ -58,7 +58,8 @@ def test_merge_spellings_keeps_the_most_frequent(tmp_path):
     path.write_text(MESSY)
     with warnings.catch_warnings():
         warnings.simplefilter("error")     # merging must not warn
-        intake = read(path, "nitrate", "mix", decimal=",", merge_spellings=True)
+        intake = read(path, "nitrate", "mix", decimal=",", merge_spellings=True,
+                      nondetects="drop")
     assert intake.layout.labels == ("Rye", "Fallow")
     assert list(intake.layout.stats.n) == [3, 2]
     assert any("merged spellings" in n and "'Rye'" in n for n in intake.ledger.notes)
@@ -117,7 +118,7 @@ def test_excel_sheet_by_name_and_row_numbers(tmp_path):
         sheet.append(row)
     path = tmp_path / "t.xlsx"
     book.save(path)
-    intake = read(path, "nitrate", "mix", sheet="2025")
+    intake = read(path, "nitrate", "mix", sheet="2025", nondetects="drop")
     np.testing.assert_array_equal(intake.layout.values, [3.5, 4.0, 5.0, 7.25])
     np.testing.assert_array_equal(intake.layout.rows, [3, 5, 6, 8])
     assert {d.row: d.reason for d in intake.ledger.dropped} == {4: "not-detected",
@@ -161,7 +162,7 @@ def test_dataframe_input_and_ordered_categorical():
 def test_wide_layout_accounts_for_every_cell(tmp_path):
     path = tmp_path / "w.csv"
     path.write_text("Rye,Fallow,Clover\n1.0,5.0,3.0\n1.5,,3.5\n2.0,6.0,n.d.\n,6.5,4.0\n")
-    intake = read(path, wide=True)
+    intake = read(path, wide=True, nondetects="drop")
     lay, led = intake.layout, intake.ledger
     assert lay.labels == ("Rye", "Fallow", "Clover")
     assert list(lay.stats.n) == [3, 3, 3]
@@ -182,7 +183,8 @@ def test_ledger_always_balances_and_renders(tmp_path):
     path.write_text(MESSY)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        intake = read(path, "nitrate", "mix", decimal=",", merge_spellings=True)
+        intake = read(path, "nitrate", "mix", decimal=",", merge_spellings=True,
+                      nondetects="drop")
     led = intake.ledger
     assert led.read == led.used + len(led.dropped)
     table = led.to_frame()

@@ -233,7 +233,7 @@ def hostile(tmp_path_factory, plants):
     path = folder / "<i onmouseover=alert(4)>trial & 'plots'.csv"
     pd.concat([frame, extra]).to_csv(path, index=False)
     r = compare(str(path), "<img src=x onerror=alert(2)>", "group", resamples=999, seed=5,
-                margin=0.25)
+                margin=0.25, nondetects="drop")
     return path, r, html_report(r)
 
 

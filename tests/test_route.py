@@ -71,10 +71,20 @@ def test_unequal_spread_with_small_groups_prefers_t3_without_calibration():
     assert any(a.procedure == "games-howell" and "liberal" in a.why for a in r.alternatives)
 
 
+NO_GROSS = NO_CAL.replace(gross_outlier_route=False)
+
+
 def test_poor_shape_with_equal_spread_goes_to_permutation():
+    """Lognormal samples of 40 hold values with modified z above the gross
+    threshold (7), but they are the long tail of skewed data (without them
+    the rest is still skewed), so the skewed-data route applies, not the
+    robust one."""
+    from famwise.diagnostics.robust_route import gross_values, isolated
     lay = layout(5, [40, 40, 40], [1, 1, 1], shape="skewed")
     findings = run_checks(lay, NO_CAL)
     assert findings.get("brown-forsythe").verdict == "ok"
+    gross = gross_values(findings, NO_CAL)
+    assert gross and not isolated(gross, lay, NO_CAL)
     r = route_of(lay)
     assert (r.route, r.procedure) == ("resample", "permutation-maxt")
     assert r.crosscheck == "tukey-kramer"
@@ -105,14 +115,66 @@ def test_poor_shape_in_a_small_unbalanced_design_does_not_trust_equal_spreads():
                     ).procedure == "permutation-maxt"
 
 
-def test_gross_outlier_alone_sends_to_resampling():
+def test_gross_outlier_sends_to_trimmed_means_and_lists_the_row():
+    """A gross value (modified z above policy.gross_outlier_z) must not reach a
+    procedure on means: groups of 20 go to Yuen's trimmed means, the row is
+    named, the ranks are the cross-check.  With the robust route off, the
+    value sends the data to resampling as before."""
     rng = np.random.default_rng(7)
     groups = [rng.normal(10, 1, 20) for _ in range(3)]
     groups[1][3] = 30.0                            # a decimal slip: 3.0 typed as 30
     lay = Layout.from_groups(groups)
     r = route_of(lay)
-    assert r.route == "resample"
-    assert "far from" in " ".join(r.reasons)
+    assert (r.route, r.procedure) == ("robust", "yuen-holm")
+    text = " ".join(r.reasons)
+    assert "row 24 (1, 30" in text and "Check these rows" in text
+    assert r.crosscheck in ("gehan-maxt", "steel-dwass")
+    assert "bootstrap-hall" in {a.procedure for a in r.alternatives}
+    old = route_of(lay, policy=NO_GROSS)
+    assert old.route == "resample" and "far from" in " ".join(old.reasons)
+    forced = route_of(lay, procedure="tukey-kramer")
+    assert any("gross values" in a for a in forced.against)
+
+
+def test_gross_outlier_in_a_small_group_goes_to_ranks():
+    """20% trimming of a group of four removes nothing, so ranks are used."""
+    rng = np.random.default_rng(8)
+    groups = [rng.normal(10, 1, n) for n in (12, 12, 4)]
+    groups[2][1] = 60.0
+    lay = Layout.from_groups(groups, ["a", "b", "c"])
+    r = route_of(lay)
+    assert r.route == "robust"
+    assert r.procedure in ("gehan-maxt", "steel-dwass")
+    assert "fewer than 5 values ('c')" in " ".join(r.reasons)
+    assert r.crosscheck == "yuen-holm"
+    ref = route_of(lay, vs_reference(lay.labels, "a"))
+    assert ref.procedure in ("gehan-maxt", "steel")
+
+
+def test_nondetects_take_the_censored_route():
+    """Non-detects kept as left-censored values: Gehan with one limit, Peto
+    when the limits differ, the other score as the cross-check; contrasts
+    are refused with the fix; heavily censored groups warn."""
+    from famwise.core.errors import FamwiseInputError
+    values = [[0.5, 0.5, 1.2, 2.0, 0.9], [0.5, 3.1, 2.2, 4.0, 1.8], [0.5, 0.5, 0.5, 0.5, 0.7]]
+    flags = [[True, True, False, False, False], [True, False, False, False, False],
+             [True, True, True, True, False]]
+    lay = Layout.from_groups(values, ["a", "b", "c"], censored=flags)
+    r = route_of(lay)
+    assert (r.route, r.procedure, r.crosscheck) == ("censored", "gehan-maxt", "peto-maxt")
+    assert "7 of the 15 values are non-detects" in r.reasons[0]
+    assert any("'c' (80%)" in w for w in r.warnings)
+    two = Layout.from_groups([[0.5, 0.5, 1.2, 2.0], [0.2, 3.1, 2.2, 4.0], [0.5, 0.9, 1.1, 2.0]],
+                             ["a", "b", "c"], censored=[[True, True, False, False],
+                                                    [True, False, False, False],
+                                                    [True, False, False, False]])
+    r2 = route_of(two)
+    assert (r2.procedure, r2.crosscheck) == ("peto-maxt", "gehan-maxt")
+    assert "limits differ (0.2, 0.5)" in " ".join(r2.reasons)
+    assert route_of(two, policy=NO_CAL.replace(peto_when_limits_differ=False)
+                    ).procedure == "gehan-maxt"
+    with pytest.raises(FamwiseInputError, match="compare pairs of groups"):
+        route_of(lay, contrasts(lay.labels, "(a + b)/2 - c"))
 
 
 def test_small_groups_warn():

@@ -28,11 +28,12 @@ _FDR_NAMES = {"bh": "Benjamini-Hochberg (1995)", "by": "Benjamini-Yekutieli (200
 
 
 CENSORED_CAUTION = (
-    "Some values were reported below a detection or reporting limit; famwise set them "
-    "aside rather than substitute a value, which biases means upward where such values "
-    "are common (see n_set_aside). Where these results feed a regulatory or compliance "
-    "decision, follow the applicable regulations and methods for censored data and have "
-    "a qualified statistician review the analysis.")
+    "Some values were reported below a detection or reporting limit; famwise kept them as "
+    "left-censored values (below their limit) and compared those responses with rank "
+    "procedures for censored data, never substituting a value (with nondetects='drop' "
+    "they are set aside instead, which biases means upward; see n_set_aside). Where these "
+    "results feed a regulatory or compliance decision, follow the applicable regulations "
+    "and methods for censored data and have a qualified statistician review the analysis.")
 
 
 class BatchWarning(FamwiseWarning):
@@ -105,7 +106,8 @@ class BatchResult:
         ran = t["status"] == "ok"
         view["procedure"] = t["procedure"].where(ran, "(" + t["status"] + ")")
         view["omnibus"] = t["omnibus"].map({"anova-f": "F", "welch-anova": "Welch",
-                                            "kruskal-wallis": "KW"})
+                                            "kruskal-wallis": "KW",
+                                            "min-adjusted-p": "min p"})
         view["p"] = t["omnibus_p"]
         view["q"] = t["omnibus_q"]
         view["screened"] = t["omnibus_reject"]
@@ -117,7 +119,7 @@ class BatchResult:
         lines.append(frame_text(_display(view), max_label=26))
         lines += textwrap.wrap(
             f"(p: omnibus p-value, F = one-way ANOVA, Welch = Welch's ANOVA, KW = "
-            f"Kruskal-Wallis; q: "
+            f"Kruskal-Wallis, min p = the smallest adjusted p of the censored route; q: "
             f"{fdr['method'].upper()}-adjusted across tasks; screened: q <= "
             f"{fdr['level']:g}; different: comparisons declared different / comparisons)",
             width=width)

@@ -106,7 +106,8 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
           seed=None, n_jobs=1, backend="processes", scheduler=None, policy=None,
           crosscheck=True, out=None, force=False, caution=None, command=None,
           sheet=None, delimiter=None, decimal=".", encoding=None,
-          merge_spellings=False, block=None, covariates=None, options=None) -> BatchResult:
+          merge_spellings=False, block=None, covariates=None, options=None,
+          detection_limit=None, nondetects="keep") -> BatchResult:
     """Compare groups for many responses (and strata) and screen them by false discovery rate.
 
     Parameters
@@ -168,6 +169,11 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
         The named procedure's own options, as for :func:`famwise.compare`
         (checked up front, applied to every task, recorded in the batch
         record's settings and in each task's command).
+    detection_limit, nondetects
+        Non-detects, as for :func:`famwise.intake.read`: kept as
+        left-censored values by default (their responses take the censored
+        route); ``detection_limit`` (a number or a column) gives bare tokens
+        such as ``"<DL"`` their limit in every response.
 
     Returns
     -------
@@ -188,8 +194,11 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
        the checks found equal spreads and fair shape, Welch's ANOVA
        otherwise.  Neither is robust to gross skew; the resampling route's
        pairwise results are, its omnibus p-value less so.
-    4. Values below a detection limit are set aside, never substituted; the
-       summary then carries a caution (:data:`CENSORED_CAUTION`).
+    4. Values below a detection limit are kept as left-censored values
+       (their responses take the censored route; ``nondetects="drop"`` sets
+       them aside), never substituted; the summary then carries a caution
+       (:data:`CENSORED_CAUTION`).  The omnibus p-value of the censored and
+       robust routes is the smallest adjusted p-value of their procedure.
 
     Examples
     --------
@@ -203,6 +212,8 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
     started = time.perf_counter()
     alpha = _check_settings(alpha, fdr, backend, scheduler, procedure, group, seed, decimal)
     options = check_options(procedure, options)
+    from ..intake.nondetects import check_mode
+    check_mode(nondetects)
     pol = _policy(policy)
     root = np.random.SeedSequence(seed)
     raw = load_table(data, sheet=sheet, delimiter=delimiter, decimal=decimal, encoding=encoding)
@@ -218,7 +229,8 @@ def batch(data, responses="all-numeric", group=None, *, by=None, family="all-pai
                     by=raw.header[b] if b is not None else None,
                     block=[raw.header[j] for j in model_cols["block"]] or None,
                     covariates=[raw.header[j] for j in model_cols["covariates"]] or None,
-                    options=options)
+                    options=options,
+                    nondetects=nondetects, detection_limit=detection_limit)
     plan = _plan_tasks(raw, data, picked, g, b, settings, root, command)
 
     if out is not None:             # refuse before the work, not after it

@@ -136,8 +136,9 @@ def _remap(intake: Intake, rows: np.ndarray, source: str, notes) -> Intake:
     layout = replace(lay, rows=rows[lay.rows - 1], source=source)
     dropped = tuple(Dropped(int(rows[d.row - 1]), d.column, d.value, d.reason, d.group)
                     for d in led.dropped)
+    censored = tuple(replace(c, row=int(rows[c.row - 1])) for c in led.censored)
     ledger = Ledger(source, led.unit, led.read, led.used, dropped,
-                    tuple(notes) + tuple(led.notes))
+                    tuple(notes) + tuple(led.notes), censored)
     return Intake(layout, ledger)
 
 
@@ -161,7 +162,9 @@ def _run_task(task: _Task, source: str, group: str, notes, options: dict, render
         try:
             intake = read(pd.DataFrame(task.columns), task.response, group,
                           merge_spellings=options["merge_spellings"],
-                          block=options.get("block"), covariates=options.get("covariates"))
+                          block=options.get("block"), covariates=options.get("covariates"),
+                          nondetects=options.get("nondetects", "keep"),
+                          detection_limit=options.get("detection_limit"))
             extra = [f"stratum: {options['by']} = {task.stratum!r}"] \
                 if task.stratum is not None else []
             intake = _remap(intake, task.rows, source, list(notes) + extra)
@@ -232,4 +235,8 @@ def _task_command(source, data, response, group, stratum, settings, seed, comman
     parts += ["--resamples", str(settings["resamples"]), "--seed", str(seed)]
     if settings["merge_spellings"]:
         parts.append("--merge-spellings")
+    if settings.get("detection_limit") is not None:
+        parts += ["--detection-limit", str(settings["detection_limit"])]
+    if settings.get("nondetects", "keep") != "keep":
+        parts += ["--nondetects", settings["nondetects"]]
     return shlex.join(parts)

@@ -59,12 +59,23 @@ def _add_file_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--encoding", metavar="NAME", help="text encoding (default UTF-8)")
     p.add_argument("--merge-spellings", action="store_true",
                    help="merge labels that differ only by case or spacing")
+    p.add_argument("--detection-limit", metavar="NUMBER|COL",
+                   help="limit of bare non-detects such as 'n.d.' or '<DL': a number, or "
+                        "the column holding each row's limit")
+    p.add_argument("--nondetects", choices=("keep", "drop"), default="keep",
+                   help="keep non-detects as left-censored values (default) or set them "
+                        "aside")
 
 
 def _file_options(args) -> dict:
-    return dict(sheet=args.sheet, delimiter=args.delimiter,
-                decimal="," if args.decimal_comma else ".", encoding=args.encoding,
-                merge_spellings=args.merge_spellings)
+    out = dict(sheet=args.sheet, delimiter=args.delimiter,
+               decimal="," if args.decimal_comma else ".", encoding=args.encoding,
+               merge_spellings=args.merge_spellings)
+    if getattr(args, "detection_limit", None) is not None:
+        out["detection_limit"] = args.detection_limit
+    if getattr(args, "nondetects", "keep") != "keep":
+        out["nondetects"] = args.nondetects
+    return out
 
 
 def _add_data_options(p: argparse.ArgumentParser) -> None:
@@ -115,6 +126,10 @@ def _add_compare_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--scheduler", metavar="ADDRESS", help="dask scheduler address")
     p.add_argument("--policy", metavar="FILE", help="routing thresholds from a TOML file")
     p.add_argument("--no-crosscheck", action="store_true", help="skip the second route")
+    p.add_argument("--transform", choices=("log",), default=None,
+                   help="analyse on the log scale; results as ratios of geometric means")
+    p.add_argument("--log-offset", type=float, default=None, metavar="C",
+                   help="constant added before the log (recorded), e.g. for zeros")
     p.add_argument("--calibrate", nargs="?", type=int, const=2000, default=0, metavar="N",
                    help="also estimate familywise error rates at this design (N replicates, "
                         "default 2000)")
@@ -388,6 +403,7 @@ def _compare(args, command):
                    backend=args.backend, scheduler=args.scheduler, policy=args.policy,
                    crosscheck=not args.no_crosscheck, calibrate=args.calibrate,
                    command=command, options=_procedure_options(args.option),
+                   transform=args.transform, log_offset=args.log_offset,
                    **_read_options(args))
 
 

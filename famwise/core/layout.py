@@ -213,6 +213,10 @@ class Layout:
     design : Design or None
         Blocking factors and covariates of the observations (None: the
         one-way layout).  :func:`famwise.model.fit_model` reads it.
+    censored : ndarray of bool, shape (N,), or None
+        True where the observation is a non-detect: the value lies below
+        ``values[i]``, its detection limit (left-censored).  None (the
+        default) when every value was measured.
     """
 
     values: np.ndarray
@@ -223,6 +227,7 @@ class Layout:
     group: str = "group"
     source: str = "<arrays>"
     design: Design | None = field(default=None, repr=False, compare=False)
+    censored: np.ndarray | None = field(repr=False, default=None, compare=False)
 
     def __post_init__(self):
         values = np.ascontiguousarray(self.values, dtype=np.float64)
@@ -249,14 +254,30 @@ class Layout:
                     f"the design describes {design.n_obs} observations but the layout "
                     f"has {values.size} values")
             object.__setattr__(self, "design", design)
+        if self.censored is not None:
+            cens = np.ascontiguousarray(self.censored, dtype=bool)
+            if cens.shape != values.shape:
+                raise FamwiseInputError(
+                    f"censored flags must match the values; got shapes {cens.shape} "
+                    f"and {values.shape}")
+            if not cens.any():
+                cens = None
+            else:
+                cens.flags.writeable = False
+            object.__setattr__(self, "censored", cens)
         values.flags.writeable = False
         codes.flags.writeable = False
 
     @classmethod
     def from_groups(cls, groups: Sequence[Sequence[float]],
                     labels: Sequence[str] | None = None, *,
-                    response: str = "response", group: str = "group") -> "Layout":
-        """Build a layout from one sequence of values per group."""
+                    response: str = "response", group: str = "group",
+                    censored: Sequence[Sequence[bool]] | None = None) -> "Layout":
+        """Build a layout from one sequence of values per group.
+
+        ``censored`` (one sequence of flags per group) marks non-detects,
+        whose value is then their detection limit.
+        """
         arrays = [np.asarray(g, dtype=np.float64).ravel() for g in groups]
         if labels is None:
             labels = [str(i) for i in range(len(arrays))]
@@ -265,8 +286,14 @@ class Layout:
                 f"got {len(arrays)} groups but {len(labels)} labels")
         values = np.concatenate(arrays) if arrays else np.empty(0)
         codes = np.repeat(np.arange(len(arrays)), [a.size for a in arrays])
+        flags = None
+        if censored is not None:
+            parts = [np.asarray(c, dtype=bool).ravel() for c in censored]
+            if len(parts) != len(arrays) or any(p.size != a.size for p, a in zip(parts, arrays)):
+                raise FamwiseInputError("censored must give one flag per value, per group")
+            flags = np.concatenate(parts) if parts else np.empty(0, dtype=bool)
         return cls(values=values, codes=codes, labels=tuple(labels),
-                   response=response, group=group)
+                   response=response, group=group, censored=flags)
 
     def with_design(self, blocks=None, covariates=None) -> "Layout":
         """Return this layout with blocks and covariates (see :meth:`Design.from_arrays`)."""
@@ -286,6 +313,18 @@ class Layout:
     @property
     def n_total(self) -> int:
         return int(self.values.size)
+
+    @property
+    def has_censoring(self) -> bool:
+        """True when some values are non-detects (left-censored)."""
+        return self.censored is not None
+
+    @property
+    def censored_flags(self) -> np.ndarray:
+        """The censoring flags, all False when nothing is censored."""
+        if self.censored is None:
+            return np.zeros(self.values.size, dtype=bool)
+        return self.censored
 
     @cached_property
     def stats(self) -> GroupStats:

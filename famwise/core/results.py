@@ -39,6 +39,10 @@ always present, ``null`` where it does not apply:
                  group_p, efficiency (relative efficiency of the blocking and
                  its parts, or null), efficiency_sentence, cv_percent,
                  means_correlated, notes; null for a one-way layout
+``transform``    the scale: {"transform": "log", "offset", "sentence"}, or null
+``censoring``    non-detects: mode ("keep"/"drop"), detection_limit option,
+                 kept_censored (count and by group), set_aside, sentence, and
+                 the substitution sensitivity table (null without non-detects)
 """
 
 from __future__ import annotations
@@ -90,6 +94,8 @@ class DecisionRecord:
     model: dict | None = None
     options: dict = field(default_factory=dict)
     schema: str = SCHEMA
+    censoring: dict | None = None
+    transform: dict | None = None
 
     def to_dict(self) -> dict:
         return asdict(self)

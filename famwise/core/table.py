@@ -18,11 +18,16 @@ cross-check, the letters and the report read one set of columns:
 ``reject``        p_adjusted <= alpha
 ``procedure``     the procedure identifier
 ``mc_error``      (resampling only) Monte Carlo standard error of p_adjusted
-``relative_effect`` (Brunner-Munzel only) P(X_b < X_a) + P(X_b = X_a)/2, the
+``relative_effect`` (Brunner-Munzel; gehan-maxt and peto-maxt, where the order of
+                  a non-detect and a value above it is known and otherwise counts
+                  as a tie) P(X_b < X_a) + P(X_b = X_a)/2, the
                   probability that a value of group_a exceeds one of group_b,
                   ties counting half; with ``relative_effect_lower`` and
                   ``relative_effect_upper``, its interval, when given
 ``practical``     (with a margin only) the practical classification
+``ratio``, ``ratio_lower``, ``ratio_upper``
+                  (``transform="log"`` only) exp of ``difference``, ``ci_lower``,
+                  ``ci_upper``: the ratio of geometric means and its interval
 
 This module sits at the bottom of the package: it imports nothing else from
 famwise but :mod:`famwise.core.families` and :mod:`famwise.core.errors`.
@@ -35,13 +40,17 @@ import pandas as pd
 
 from .families import Family
 
-__all__ = ["COLUMNS", "comparisons_table"]
+__all__ = ["COLUMNS", "OPTIONAL_COLUMNS", "comparisons_table"]
 
 COLUMNS = (
     "comparison", "group_a", "group_b", "difference", "std_error", "df",
     "statistic", "p_unadjusted", "p_adjusted", "ci_lower", "ci_upper",
     "reject", "procedure",
 )
+
+#: Columns some results add after the standard ones (see the module notes).
+OPTIONAL_COLUMNS = ("mc_error", "unsettled", "practical", "ratio", "ratio_lower",
+                    "ratio_upper", "relative_effect")
 
 
 def _column(value, m: int, name: str) -> np.ndarray:

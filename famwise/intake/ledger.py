@@ -9,6 +9,14 @@ Row numbers
 * CSV/TSV and Excel: the row number a spreadsheet shows, counting the header
   as a row (the first data row under a header on line 1 is row 2);
 * Parquet files and DataFrames: the 1-based position of the record.
+
+Non-detects
+-----------
+With ``nondetects="keep"`` (the default) a non-detect such as ``"<0.5"`` is
+*used*: it is kept as a left-censored value, listed in
+:attr:`Ledger.censored` (row, column, text, limit, group), and counted in
+``used``.  With ``nondetects="drop"`` it is set aside with reason
+``below-limit`` or ``not-detected``.
 """
 
 from __future__ import annotations
@@ -18,7 +26,7 @@ from dataclasses import dataclass, field
 
 import pandas as pd
 
-__all__ = ["Dropped", "Ledger", "REASONS"]
+__all__ = ["Dropped", "Censored", "Ledger", "REASONS"]
 
 #: Reasons a value is set aside, in the order they are tested.
 REASONS = {
@@ -26,8 +34,12 @@ REASONS = {
     "blank-row": "blank row",
     "missing-group": "missing group label",
     "missing-response": "missing response value",
-    "below-limit": "censored text such as '<0.5' (a detection or reporting limit)",
-    "not-detected": "text marking a non-detect such as 'n.d.'",
+    "below-limit": "censored text such as '<0.5' (a detection or reporting limit), set "
+                   "aside on request (nondetects='drop')",
+    "not-detected": "text marking a non-detect such as 'n.d.', set aside on request "
+                    "(nondetects='drop')",
+    "above-limit": "right-censored text such as '>1000' (above a reporting limit; not "
+                   "supported)",
     "text": "text where a number was expected",
     "infinite": "infinite value",
     "empty-cell": "empty cell (wide layout)",
@@ -53,6 +65,17 @@ class Dropped:
 
 
 @dataclass(frozen=True)
+class Censored:
+    """One non-detect kept as a left-censored value: known to lie below ``limit``."""
+
+    row: int
+    column: str
+    value: str      # the text as read ("<0.5", "n.d.")
+    limit: float
+    group: str = ""
+
+
+@dataclass(frozen=True)
 class Ledger:
     """Counts and details of what was read, used and set aside.
 
@@ -69,6 +92,8 @@ class Ledger:
     notes : tuple of str
         Plain sentences about the reading (delimiter, sheet, merged labels,
         spelling variants ...).
+    censored : tuple of Censored
+        Every non-detect kept as a left-censored value (counted in ``used``).
     """
 
     source: str
@@ -77,6 +102,7 @@ class Ledger:
     used: int
     dropped: tuple[Dropped, ...] = field(default=())
     notes: tuple[str, ...] = field(default=())
+    censored: tuple[Censored, ...] = field(default=())
 
     def __post_init__(self):
         if self.read != self.used + len(self.dropped):
@@ -95,15 +121,29 @@ class Ledger:
              for d in self.dropped],
             columns=["row", "column", "group", "value", "reason", "explanation"])
 
+    def censored_counts(self) -> dict[str, int]:
+        """Return the number of non-detects kept per group (first-seen order)."""
+        return dict(Counter(c.group for c in self.censored))
+
+    def censored_frame(self) -> pd.DataFrame:
+        """Return the non-detects kept as left-censored values (one row each)."""
+        return pd.DataFrame([(c.row, c.column, c.group, c.value, c.limit)
+                             for c in self.censored],
+                            columns=["row", "column", "group", "value", "limit"])
+
     def to_dict(self) -> dict:
         return {"source": self.source, "unit": self.unit, "read": self.read,
                 "used": self.used, "dropped": len(self.dropped),
-                "dropped_by_reason": self.counts(), "notes": list(self.notes)}
+                "dropped_by_reason": self.counts(), "notes": list(self.notes),
+                "kept_censored": len(self.censored),
+                "kept_censored_by_group": self.censored_counts()}
 
     def lines(self, limit: int = 20) -> list[str]:
         """Return a plain-text account, listing up to ``limit`` dropped entries."""
         unit = self.unit + "s"
-        out = [f"{self.source}: {self.read} {unit} read, {self.used} used, "
+        kept = (f" ({len(self.censored)} of them non-detects kept as left-censored values)"
+                if self.censored else "")
+        out = [f"{self.source}: {self.read} {unit} read, {self.used} used{kept}, "
                f"{len(self.dropped)} set aside"]
         for reason, count in self.counts().items():
             out.append(f"  {count:>5}  {REASONS[reason]}")

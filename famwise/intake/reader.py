@@ -13,12 +13,12 @@ else, for a DataFrame whose group column is an ordered ``Categorical``, its
 categories; else the order of first appearance in the source.
 
 Every value read is either used or listed in the Ledger with its reason:
-missing response, censored text (``"<0.5"``), a non-detect marker
-(``"n.d."``), other text, an infinite value, a missing group label, a blank
-row, or (wide layout) an empty cell.  Labels are stripped of surrounding
-space; labels that differ only by letter case or inner spacing raise a
-:class:`~famwise.core.errors.LabelSpellingWarning` naming the spellings and their
-counts, and are merged only with ``merge_spellings=True``.
+missing response, other text, an infinite value, a missing group label, a
+blank row, or (wide layout) an empty cell; non-detects (``"<0.5"``) are
+kept as left-censored values (:mod:`famwise.intake.nondetects`).  Labels
+are stripped; labels that differ only by case or inner spacing raise a
+:class:`~famwise.core.errors.LabelSpellingWarning`, merged only with
+``merge_spellings=True``.
 """
 
 from __future__ import annotations
@@ -39,6 +39,8 @@ from ..core.errors import FamwiseInputError, did_you_mean, LabelSpellingWarning
 from ..core.layout import Layout
 from .cells import MISSING_LABELS, blank_mask, is_blank, label_codes, parse_values
 from .ledger import Dropped, Ledger
+from . import nondetects as nd
+from .usable import validate_layout
 from .model_columns import build_design, column_names, fractional_labels, model_columns
 
 __all__ = ["Intake", "read", "file_sha256", "load_table", "parse_values", "find_column", "RawTable", "TEXT_SUFFIXES", "EXCEL_SUFFIXES", "PARQUET_SUFFIXES"]
@@ -448,7 +450,8 @@ def read(source, response: str | None = None, group: str | None = None, *,
          merge_spellings: bool = False,
          exclude_rows: Sequence[int] = (),
          block: str | Sequence[str] | None = None,
-         covariates: str | Sequence[str] | None = None) -> Intake:
+         covariates: str | Sequence[str] | None = None,
+         detection_limit=None, nondetects: str = "keep") -> Intake:
     """Read ``source`` and return the usable data and an account of every row.
 
     Parameters
@@ -491,6 +494,11 @@ def read(source, response: str | None = None, group: str | None = None, *,
         row without a value is set aside (``missing-covariate``), as is a
         text cell among numbers (``covariate-text``); a column with no
         numbers at all is refused.
+    detection_limit : float or str, optional
+        Limit of bare non-detects (``"n.d."``, ``"<DL"``): a number, or a
+        column of each row's limit (:mod:`famwise.intake.nondetects`).
+    nondetects : {"keep", "drop"}, default="keep"
+        Keep non-detects as left-censored values, or set them aside.
 
     Returns
     -------
@@ -518,15 +526,19 @@ def read(source, response: str | None = None, group: str | None = None, *,
         raise FamwiseInputError(
             "blocks and covariates need the long layout (one row per plot with its "
             "response, group and block columns); reshape the wide table to long")
+    how = nd.setup(detection_limit, nondetects, raw.header, src, wide, find_column)
     if wide:
-        values, codes, names, rows, dropped, n_read = _wide(raw, columns, decimal, excluded)
-        unit = "cell"
-        response_name, group_name = "value", "column"
+        values, codes, names, rows, dropped, n_read, (flags, cens_text) = _wide(
+            raw, columns, decimal, excluded, how)
+        unit, response_name, group_name = "cell", "value", "column"
+        cens_column = [names[c] for c in codes[flags]]
     else:
         values, codes, names, rows, dropped, n_read, response_name, group_name, \
-            design_cells = _long(raw, response, group, decimal, excluded, block_names,
-                                 covariate_names)
-        unit = "row"
+            (design_cells, (flags, cens_text)) = _long(raw, response, group, decimal,
+                                                       excluded, how, block_names,
+                                                       covariate_names)
+        unit, cens_column = "row", [response_name] * int(flags.sum())
+    notes += [nd.drop_note(dropped)] if nondetects == "drop" else []
     # From here on, labels are handled once per distinct label (``names``),
     # each value carrying the code of its label.
     counts = np.bincount(codes, minlength=len(names))
@@ -585,23 +597,34 @@ def read(source, response: str | None = None, group: str | None = None, *,
     if design_cells is not None:
         design, design_notes = build_design(design_cells, src)
         notes.extend(design_notes)
-    ledger = Ledger(src, unit, n_read, int(values.size), tuple(dropped), tuple(notes))
+    rows = np.asarray(rows, dtype=np.int64)
+    cens = nd.ledger_entries(flags, cens_text, cens_column, values, rows,
+                             [label_order[c] for c in codes[flags]], names if wide else None)
+    if cens:
+        notes.append(f"{len(cens)} non-detect{'s' if len(cens) != 1 else ''} kept as "
+                     f"left-censored values (below their detection limit)")
+    ledger = Ledger(src, unit, n_read, int(values.size), tuple(dropped), tuple(notes),
+                    tuple(cens))
     layout = Layout(values=values, codes=codes, labels=tuple(label_order),
-                    rows=np.asarray(rows, dtype=np.int64), response=response_name,
-                    group=group_name, source=src, design=design)
+                    rows=rows, response=response_name, group=group_name, source=src,
+                    design=design, censored=flags if flags.any() else None)
     with np.errstate(over="ignore", invalid="ignore"):
-        _validate(layout, ledger)        # huge values are refused there, not warned about
+        validate_layout(layout, ledger)  # huge values are refused there, not warned about
     return Intake(layout, ledger)
 
 
-def _long(raw: RawTable, response, group, decimal, excluded, block_names=(),
-          covariate_names=()):
+def _long(raw: RawTable, response, group, decimal, excluded, how: nd.Censoring,
+          block_names=(), covariate_names=()):
     src = raw.source
     r = find_column(raw.header, response, src, "response")
     g = find_column(raw.header, group, src, "group")
     if r == g:
         raise FamwiseInputError(
             f"response and group are the same column {raw.header[r]!r}")
+    if how.spec.column is not None and how.spec.column in (r, g):
+        raise FamwiseInputError(
+            f"the detection-limit column {how.spec.name!r} is also the response or group "
+            f"column; name the column holding each row's limit")
     rname, gname = raw.header[r], raw.header[g]
     b_cols, c_cols = model_columns(raw.header, src, {r: "response", g: "group"},
                                    block_names, covariate_names, find_column)
@@ -626,7 +649,14 @@ def _long(raw: RawTable, response, group, decimal, excluded, block_names=(),
         c_values.append((v, texts))
         c_reasons.append(reasons)
     values, reasons, texts = parse_values(raw.body[r], decimal)
+    values, reasons = np.array(values, dtype=np.float64), np.array(reasons, dtype=object)
     codes, names = label_codes(raw.body[g])
+    excl0 = (np.isin(raw.rows, np.fromiter(excluded, dtype=np.int64, count=len(excluded)))
+             if excluded else np.zeros(len(values), dtype=bool))
+    limits = nd.row_limits(raw.body[how.spec.column].to_numpy(dtype=object), decimal,
+                           how.spec, src, raw.rows) if how.spec.column is not None else None
+    flags = nd.censor_cells(values, reasons, texts, how, limits, raw.rows, rname, src,
+                            decimal, excl0)
     usable = reasons == ""
     if not usable.any():
         shown = ", ".join(repr(t) for t in dict.fromkeys(x for x in texts if x)) or "only empty cells"
@@ -679,6 +709,8 @@ def _long(raw: RawTable, response, group, decimal, excluded, block_names=(),
             if reason is None:
                 reason, col, text = "missing-group", gname, label
         dropped.append(Dropped(int(raw.rows[i]), col, text, reason, label))
+    nd.check_below_limit(values, flags, limits, keep, raw.rows, src, how.spec.name)
+    kept_text = nd.flag_texts(texts, flags, keep)
     cells = None
     if b_cols or c_cols:
         cells = {"blocks": [(raw.header[j], lab[keep], frac)
@@ -686,10 +718,10 @@ def _long(raw: RawTable, response, group, decimal, excluded, block_names=(),
                  "covariates": [(raw.header[j], v[keep])
                                 for j, (v, _) in zip(c_cols, c_values)]}
     return (values[keep], codes[keep], names, raw.rows[keep], dropped,
-            len(values), rname, gname, cells)
+            len(values), rname, gname, (cells, (flags[keep], kept_text)))
 
 
-def _wide(raw: RawTable, columns, decimal, excluded):
+def _wide(raw: RawTable, columns, decimal, excluded, how: nd.Censoring):
     src = raw.source
     header = raw.header
     if columns is None:
@@ -703,10 +735,14 @@ def _wide(raw: RawTable, columns, decimal, excluded):
     names = list(dict.fromkeys(header[j] for j in use))
     excl = (np.isin(raw.rows, np.fromiter(excluded, dtype=np.int64, count=len(excluded)))
             if excluded else np.zeros(len(raw.body), dtype=bool))
-    values, codes, rows, dropped = [], [], [], []
+    values, codes, rows, dropped, flag_parts, text_parts = [], [], [], [], [], []
     for j in use:
         v, reasons, texts = parse_values(raw.body[j], decimal)
+        v, reasons = np.array(v, dtype=np.float64), np.array(reasons, dtype=object)
+        f = nd.censor_cells(v, reasons, texts, how, None, raw.rows, header[j], src, decimal, excl)
         keep = (reasons == "") & ~excl
+        flag_parts.append(f[keep])
+        text_parts.append(nd.flag_texts(texts, f, keep))
         values.append(v[keep])
         codes.append(np.full(int(keep.sum()), names.index(header[j]), dtype=np.int64))
         rows.append(raw.rows[keep])
@@ -726,7 +762,8 @@ def _wide(raw: RawTable, columns, decimal, excluded):
         raise FamwiseInputError(f"the group columns of {src!r} hold no numeric values"
                                 f"{_number_hint(texts, decimal)}")
     dropped.sort(key=lambda d: (d.row, use.index(header.index(d.column))))
-    return values, codes, names, rows, dropped, len(use) * len(raw.body)
+    return (values, codes, names, rows, dropped, len(use) * len(raw.body),
+            (np.concatenate(flag_parts), np.concatenate(text_parts)))
 
 
 def _check_labels(names, used, first, rows, src: str, unit: str) -> None:
@@ -760,39 +797,3 @@ def _excluded_rows(exclude_rows, raw: RawTable) -> set:
                 f"{raw.rows[0]} to {raw.rows[-1]})")
         rows.add(value)
     return rows
-
-
-def _validate(layout: Layout, ledger: Ledger) -> None:
-    src = ledger.source
-    if layout.k < 2:
-        only = f" (only {layout.labels[0]!r})" if layout.k == 1 else ""
-        raise FamwiseInputError(
-            f"{src!r} has fewer than two groups with usable values{only}; "
-            f"a comparison needs at least two")
-    n = layout.stats.n
-    lost = Counter(d.group for d in ledger.dropped)
-    for code in np.flatnonzero(n < 2):
-        label = layout.labels[code]
-        extra = (f" ({_count(lost[label], ledger.unit)} set aside)" if lost[label] else "")
-        raise FamwiseInputError(
-            f"group {label!r} in {src!r} has only {_count(int(n[code]), 'usable value')}{extra}; "
-            f"each group needs at least two (fix its {ledger.unit}s or remove the group)")
-    v = layout.values
-    if np.all(v == v[0]):
-        raise FamwiseInputError(
-            f"all {v.size} usable values of {layout.response!r} in {src!r} equal {v[0]:g}; "
-            f"there is no variation to compare")
-    span = float(np.max(v) - np.min(v))
-    if not span <= 1e150 or span < 1e-150:
-        raise FamwiseInputError(
-            f"the values of {layout.response!r} in {src!r} span "
-            f"{f'{span:g}' if np.isfinite(span) else 'more than 1.8e308'}, beyond what "
-            f"squares of double-precision numbers can hold (1e-150 to 1e150); rescale the "
-            f"unit (for example to thousands or to millionths)")
-    st = layout.stats
-    if not np.any(st.var > 0.0):
-        shown = ", ".join(f"{lab!r} = {m:g}" for lab, m in zip(layout.labels[:4], st.mean))
-        more = ", ..." if layout.k > 4 else ""
-        raise FamwiseInputError(
-            f"every group of {layout.response!r} in {src!r} is constant ({shown}{more}); "
-            f"there is no within-group variation to judge the differences against")

@@ -489,6 +489,12 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
         import os
         intake = load_data(data, response, group, **read_options)
         layout = intake.layout
+        if layout.has_censoring:
+            raise FamwiseInputError(
+                f"the pilot data hold {int(layout.censored.sum())} non-detect(s); planning "
+                f"simulates procedures on means from the pilot's spreads, which non-detects "
+                f"do not give: pass nondetects='drop' (--nondetects drop) to plan from the "
+                f"measured values, and say so")
         st = layout.stats
         if np.any(st.n < 2):
             small = layout.labels[int(np.argmin(st.n))]

@@ -17,7 +17,7 @@ from ..core.errors import FamwiseInputError, did_you_mean
 
 __all__ = ["ProcedureInfo", "ProcedureOption", "CATALOGUE", "check_procedure",
            "check_design", "check_options", "option_arguments", "get_procedure",
-           "model_procedures", "run_procedure"]
+           "model_procedures", "run_procedure", "CENSORED_PROCEDURES"]
 
 
 @dataclass(frozen=True)
@@ -256,6 +256,16 @@ CATALOGUE: dict[str, ProcedureInfo] = {p.name: p for p in [
                   "wild_bootstrap_stepdown", "resample", _ALL,
                   "Step-down version of the wild-bootstrap max-t.",
                   options=(_COVARIANCE, _WEIGHTS), designs=_BOTH),
+    ProcedureInfo("gehan-maxt", "famwise.resample.censored", "gehan_maxt", "resample",
+                  _PAIRS,
+                  "Values with non-detects (left-censored, several limits allowed): "
+                  "each pair's own Gehan generalised Wilcoxon statistic, permutation "
+                  "max-T."),
+    ProcedureInfo("peto-maxt", "famwise.resample.censored", "peto_maxt", "resample",
+                  _PAIRS,
+                  "Values with non-detects: each pair's own Peto-Peto statistic "
+                  "(product-limit scores), permutation max-T; steadier than Gehan's "
+                  "when detection limits differ between groups."),
     ProcedureInfo("bh", "famwise.procedures.classical", "bh", "fdr", _ALL,
                   "Benjamini-Hochberg false discovery rate (not familywise "
                   "error) on pooled t; exploratory families.", designs=_MODEL),
@@ -337,9 +347,20 @@ def check_design(name: str, layout) -> ProcedureInfo:
     return info
 
 
+#: Procedures that read non-detects as left-censored values.
+CENSORED_PROCEDURES = ("gehan-maxt", "peto-maxt")
+
+
 def run_procedure(name, layout, family, *, alpha=0.05, **options):
     """Run procedure ``name`` on ``layout`` for ``family``."""
     info = check_design(name, layout)
+    if getattr(layout, "has_censoring", False) and name not in CENSORED_PROCEDURES:
+        n = int(layout.censored.sum())
+        raise FamwiseInputError(
+            f"procedure {name!r} needs measured values, but {n} value(s) of "
+            f"{layout.response!r} are non-detects (below a detection limit); use "
+            f"{' or '.join(CENSORED_PROCEDURES)} (or procedure='auto'), or set the "
+            f"non-detects aside with nondetects='drop' (this biases means upward)")
     if family.kind not in info.families and not (
             family.kind == "contrasts" and family.is_pairwise and "all-pairs" in info.families):
         raise FamwiseInputError(

@@ -5,7 +5,11 @@ differ at all?" has one test per route:
 
 * classical (pooled variance) and ``bh``: the one-way ANOVA F test;
 * unequal-variance and resampling on means: Welch's (1951) ANOVA;
-* ranks: the Kruskal-Wallis (1952) test, tie-corrected;
+* ranks, and the robust route (gross values): the Kruskal-Wallis (1952)
+  test, tie-corrected;
+* censored (non-detects): the smallest adjusted p-value of the route's
+  permutation max-T, a test of the complete null at the same level (a
+  k-sample test would need the censored scores of all groups at once).
 * a layout with blocks or covariates, whatever the route: the F test for
   groups under the additive model, adjusted for the blocks and covariates
   (:meth:`famwise.model.ModelFit.group_test`).
@@ -31,14 +35,20 @@ OMNIBUS = {
     "anova-f": "one-way ANOVA F test (pooled variance), for the classical route",
     "welch-anova": "Welch's (1951) ANOVA (unequal variances), for the unequal-variance "
                    "and resampling routes",
-    "kruskal-wallis": "Kruskal-Wallis (1952) rank test, tie-corrected, for the rank route",
+    "kruskal-wallis": "Kruskal-Wallis (1952) rank test, tie-corrected, for the rank and "
+                      "robust routes",
+    "min-adjusted-p": "the smallest familywise-adjusted p-value of the censored route's "
+                      "permutation max-T (its statistic: the largest |T|), a test of the "
+                      "complete null at the same level",
     "model-f": "F test for groups under the additive model (adjusted for the blocks and "
                "covariates), whatever the route",
 }
 #: Route -> omnibus test identifier (any other route: Welch's ANOVA).
-ROUTE_OMNIBUS = {"classical": "anova-f", "fdr": "anova-f", "ranks": "kruskal-wallis"}
+ROUTE_OMNIBUS = {"classical": "anova-f", "fdr": "anova-f", "ranks": "kruskal-wallis",
+                 "robust": "kruskal-wallis", "censored": "min-adjusted-p"}
 
-_SYMBOL = {"anova-f": "F", "welch-anova": "F", "kruskal-wallis": "H", "model-f": "F"}
+_SYMBOL = {"anova-f": "F", "welch-anova": "F", "kruskal-wallis": "H", "model-f": "F",
+           "min-adjusted-p": "max |T|"}
 
 
 def _finite(x):
@@ -65,9 +75,12 @@ class Omnibus:
         """One plain sentence, e.g. ``Kruskal-Wallis H = 54.69 (df 5), p = 1.5e-10.``"""
         name = {"anova-f": "One-way ANOVA", "welch-anova": "Welch's ANOVA",
                 "kruskal-wallis": "Kruskal-Wallis",
-                "model-f": "The model's test for groups:"}[self.test]
+                "model-f": "The model's test for groups:",
+                "min-adjusted-p": "Permutation max-T of censored scores"}[self.test]
         if not math.isfinite(self.p):
             return f"{name}: not defined for these data ({self.note})."
+        if self.test == "min-adjusted-p":
+            return f"{name}: max |T| = {self.statistic:.4g}, smallest adjusted p = {self.p:.2g}."
         df = ", ".join(f"{d:.4g}" for d in self.df)
         return (f"{name} {_SYMBOL[self.test]} = {self.statistic:.4g} (df {df}), "
                 f"p = {self.p:.2g}.")
@@ -78,12 +91,21 @@ class Omnibus:
                 "note": self.note}
 
 
-def omnibus_test(route: str, layout) -> Omnibus:
-    """Return the omnibus test of ``route`` on ``layout`` (module notes)."""
+def omnibus_test(route: str, layout, table=None) -> Omnibus:
+    """Return the omnibus test of ``route`` on ``layout`` (module notes).
+
+    The censored route's test reads the comparisons ``table`` of its procedure.
+    """
     test = ROUTE_OMNIBUS.get(route, "welch-anova")
     if getattr(layout, "design", None) is not None:
         test = "model-f"
     nan = float("nan")
+    if test == "min-adjusted-p":
+        if table is None or not len(table):
+            return Omnibus(test, nan, (), nan, "no comparisons table")
+        import numpy as np
+        return Omnibus(test, float(np.max(np.abs(table["statistic"].to_numpy(float)))), (),
+                       float(np.min(table["p_adjusted"].to_numpy(float))))
     try:
         if test == "model-f":
             from ..model import fit_model

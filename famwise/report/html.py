@@ -38,6 +38,7 @@ from html import escape
 import numpy as np
 import pandas as pd
 
+from .estimates import censoring_sentence, estimate_sentence
 from .textformat import format_number
 from . import figures
 
@@ -273,14 +274,24 @@ def _verdict(result) -> str:
                + (_list(lines) if lines else "") + (f"<p>{_e(tail.strip())}</p>" if tail
                                                     else "") + "</div>")
     g = result.groups
-    cols = [c for c in ("group", "n", "adjusted_mean", "adjusted_se", "mean", "sd", "se",
-                        "median", "min", "max") if c in g]
+    cols = [c for c in ("group", "n", "censored", "percent_censored", "adjusted_mean",
+                        "adjusted_se", "mean", "sd", "se", "median", "median_se",
+                        "geometric_mean", "min", "max") if c in g]
     names = {"group": "group", "n": "n", "mean": "mean", "sd": "SD", "se": "SE of mean",
              "median": "median", "min": "smallest", "max": "largest",
-             "adjusted_mean": "adjusted mean", "adjusted_se": "SE of adjusted mean"}
+             "adjusted_mean": "adjusted mean", "adjusted_se": "SE of adjusted mean",
+             "censored": "non-detects", "percent_censored": "% non-detects",
+             "median_se": "SE of median", "geometric_mean": "geometric mean"}
     groups = ("<h3>The groups</h3>"
               + _table([names[c] for c in cols], g[cols].itertuples(index=False, name=None),
                        numeric=range(1, len(cols))))
+    if "censored" in g:
+        groups += ("<p>Non-detects are kept as values known only to lie below their "
+                   "detection limit. Mean, SD, median and their standard errors are "
+                   "Kaplan-Meier estimates on flipped data (Helsel 2012); where a group's "
+                   "smallest value is a non-detect, its mean places what lies below at that "
+                   "limit, so it is an upper bound. “smallest” is the smallest value or "
+                   "limit.</p>")
     return _section("verdict", intro + verdict + groups + _why(rec))
 
 
@@ -302,6 +313,10 @@ def _why(rec) -> str:
                                                 for a in route["alternatives"]))
     if route["warnings"]:
         out.append("<p>Notes:</p>" + _list(route["warnings"]))
+    if route.get("proposal"):
+        out.append(f"<p>Scale: {_e(route['proposal'])}</p>")
+    if getattr(rec, "transform", None):
+        out.append(f"<p>Scale: {_e(rec.transform['sentence'])}.</p>")
     if route.get("calibration"):
         out.append("<p>The quick calibration used to choose:</p>"
                    + _value_html(route["calibration"]))
@@ -479,6 +494,9 @@ def _comparisons(result) -> str:
     cols = [("comparison", "comparison"), ("difference", "difference"),
             ("ci_lower", f"{level} lower"), ("ci_upper", f"{level} upper"),
             ("p_adjusted", "p adjusted")]
+    if "ratio" in t:
+        cols += [("ratio", "ratio"), ("ratio_lower", f"{level} ratio lower"),
+                 ("ratio_upper", f"{level} ratio upper")]
     rows = []
     for _, r in t.iterrows():
         row = [r[c] for c, _ in cols]
@@ -505,6 +523,7 @@ def _comparisons(result) -> str:
     out = [f"<p>Procedure <strong>{_e(rec.route['procedure'])}</strong>; difference = first "
            f"group minus second (or the contrast's estimate); {level} intervals. "
            f"“p adjusted” accounts for the whole family.</p>",
+           f"<p>{_e(estimate_sentence(result))}</p>",
            _table(headers, rows, numeric=range(1, len(cols)), css="comparisons"),
            '<details class="more" open><summary>Standard errors, test statistics, '
            'degrees of freedom and unadjusted p-values</summary>'
@@ -512,6 +531,22 @@ def _comparisons(result) -> str:
            + _table(more_head, more_rows, numeric=range(1, len(more_head)),
                     css="comparisons")
            + "</details>"]
+    withheld = t.attrs.get("intervals_withheld")
+    if withheld:
+        out.append(f"<p>Intervals withheld for {_e(', '.join(withheld['comparisons']))}: "
+                   f"{_e(withheld['reason'])}.</p>")
+    nd_text = censoring_sentence(result)
+    if nd_text:
+        out.append(f"<h3>Non-detects</h3><p>{_e(nd_text)}</p>")
+        sens = (rec.censoring or {}).get("sensitivity")
+        if sens:
+            subs = sens["substitutions"]
+            out.append(_table(
+                ["comparison", "censored analysis"] + [f"with {s}" for s in subs],
+                [[r["comparison"], "differ" if r["reject"] else "not shown"]
+                 + [("-" if r.get(f"reject_{s}") is None else
+                     ("differ" if r[f"reject_{s}"] else "not shown")) for s in subs]
+                 for r in sens["rows"]]))
     if rec.margin is not None:
         out.append(f"<p>Margin: {_num(rec.margin)} (the smallest difference that matters). "
                    f"“important”: the whole interval lies beyond the margin; “equivalent "

@@ -11,6 +11,7 @@ import textwrap
 import numpy as np
 import pandas as pd
 
+from .estimates import censoring_sentence, estimate_sentence
 from .textformat import format_number, frame_text
 
 __all__ = ["summary_text", "model_lines", "anova_display", "CAUTION"]
@@ -21,6 +22,8 @@ CAUTION = ("Caution: significance is not importance, field data do not prove cau
 
 
 def _interval(lo, hi) -> str:
+    if not (np.isfinite(lo) or np.isfinite(hi)) and np.isnan(lo) and np.isnan(hi):
+        return "none"
     return f"[{format_number(lo)}, {format_number(hi)}]"
 
 
@@ -70,8 +73,16 @@ def summary_text(result, width: int = 100) -> str:
     key = "adjusted_mean" if model else "mean"
     groups = result.groups.sort_values(key, ascending=False)
     cols = (["group", "n", "adjusted_mean", "adjusted_se", "mean"] if model
-            else ["group", "n", "mean", "sd"]) + (["letters"] if "letters" in groups else [])
+            else ["group", "n", "mean", "sd"]) + (
+        ["geometric_mean"] if "geometric_mean" in groups else []) + (
+        ["letters"] if "letters" in groups else [])
+    km = "censored" in groups
+    if km:
+        groups = groups.assign(**{"non-detects": [f"{c} ({p:.0f}%)" for c, p in zip(
+            groups["censored"], groups["percent_censored"])]})
+        cols.insert(2, "non-detects")
     out.append(("Groups, largest adjusted mean first" if model else
+                "Groups, largest Kaplan-Meier mean first" if km else
                 "Groups, largest mean first")
                + (" (groups sharing a letter were not declared different)"
                   if "letters" in groups else ""))
@@ -79,17 +90,33 @@ def summary_text(result, width: int = 100) -> str:
     out.append("")
     t = result.comparisons
     level = int(round(100 * (1 - rec.alpha)))
-    shown = pd.DataFrame({
-        "comparison": t["comparison"],
-        "difference": t["difference"],
-        f"{level}% interval": [_interval(a, b) for a, b in zip(t["ci_lower"], t["ci_upper"])],
-        "p adjusted": t["p_adjusted"],
-        "verdict": np.where(t["reject"], "differ", "not shown to differ"),
-    })
+    if "ratio" in t:
+        shown = pd.DataFrame({
+            "comparison": t["comparison"],
+            "ratio": t["ratio"],
+            f"{level}% interval": [_interval(a, b) for a, b in zip(t["ratio_lower"],
+                                                                   t["ratio_upper"])],
+            "p adjusted": t["p_adjusted"],
+            "verdict": np.where(t["reject"], "differ", "not shown to differ"),
+        })
+    else:
+        shown = pd.DataFrame({
+            "comparison": t["comparison"],
+            "difference": t["difference"],
+            f"{level}% interval": [_interval(a, b) for a, b in zip(t["ci_lower"],
+                                                                   t["ci_upper"])],
+            "p adjusted": t["p_adjusted"],
+            "verdict": np.where(t["reject"], "differ", "not shown to differ"),
+        })
     if "practical" in t:
         shown["practical"] = t["practical"]
     out.append(f"Comparisons ({len(t)})")
     out.append(frame_text(shown, max_label=min(40, max(12, width // 3))))
+    out.append(wrap(estimate_sentence(result)))
+    withheld = t.attrs.get("intervals_withheld")
+    if withheld:
+        out.append(wrap(f"Intervals withheld for {len(withheld['comparisons'])} comparison(s): "
+                        f"{withheld['reason']}."))
     out.append("")
     reasons = " ".join(rec.route["reasons"][:3]) or "see the decision record."
     if rec.route["chosen_by"] == "user" and rec.route["against"]:
@@ -97,6 +124,13 @@ def summary_text(result, width: int = 100) -> str:
     out.append(wrap("Why: " + reasons))
     for w in rec.route["warnings"]:
         out.append(wrap("Note: " + w))
+    if rec.route.get("proposal"):
+        out.append(wrap("Scale: " + rec.route["proposal"]))
+    if getattr(rec, "transform", None):
+        out.append(wrap("Scale: " + rec.transform["sentence"] + "."))
+    nd_text = censoring_sentence(result)
+    if nd_text:
+        out.append(wrap("Non-detects: " + nd_text))
     if rec.crosscheck:
         out.append(wrap("Cross-check: " + rec.crosscheck["sentence"]))
     if rec.resampling:

@@ -8,10 +8,12 @@ records:
 
 * concentrations that are skewed (log-normal sample-to-sample variation,
   spread growing with the level), E. coli counts most of all;
-* results below the laboratory's detection limit written as the text
-  ``"<DL"`` (lead most often, a few for ammonium, copper, phosphate, zinc);
+* results below the laboratory's detection limit written with the limit,
+  ``"<0.5"`` (lead most often, a few for ammonium, copper, phosphate,
+  zinc); for lead the laboratory's new instrument lowered the limit from
+  0.5 to 0.2 ug/L for the last campaign, so lead has two limits;
 * a station reached only three times (``Greystane Reach``: a landslip closed
-  the track), so some analytes have too few values there to compare;
+  the track), and two of its three lead results are non-detects;
 * a few empty cells (a broken bottle, a meter that failed);
 * stations below the treatment works' outfall carry more nutrients, salts
   and bacteria and less dissolved oxygen; other analytes do not differ.
@@ -72,7 +74,8 @@ def water_survey(seed: int = WATER_SEED) -> pd.DataFrame:
 
     Columns: ``sample_id``, ``station``, ``campaign``, ``sampled_on`` (ISO
     date), then one column per analyte of :data:`ANALYTES` (numbers as text,
-    ``"<DL"`` below the detection limit, empty where no result exists).
+    ``"<L"`` with the limit L below the detection limit, empty where no
+    result exists).
     """
     rng = np.random.default_rng(seed)
     rows = []
@@ -92,8 +95,8 @@ def water_survey(seed: int = WATER_SEED) -> pd.DataFrame:
                 x = mean * rng.lognormal(-sdlog ** 2 / 2, sdlog)
                 if name.startswith("e_coli"):
                     row[name] = str(int(rng.poisson(x)))    # most probable number, a count
-                elif dl is not None and x < dl:
-                    row[name] = "<DL"
+                elif dl is not None and x < _limit(name, dl, campaign):
+                    row[name] = f"<{_limit(name, dl, campaign):g}"
                 else:
                     row[name] = f"{x:.{decimals}f}"
             rows.append(row)
@@ -104,6 +107,14 @@ def water_survey(seed: int = WATER_SEED) -> pd.DataFrame:
     frame.loc[27, "phosphate_mg_P_per_L"] = ""
     frame.loc[44, "dissolved_oxygen_mg_per_L"] = ""    # probe not calibrated
     grey = frame.index[frame["station"] == "Greystane Reach"]
-    frame.loc[grey[1], "lead_ug_per_L"] = "<DL"        # two of its three below the limit
-    frame.loc[grey[2], "lead_ug_per_L"] = "<DL"
+    for i in grey[1:3]:                                # two of its three below the limit
+        frame.loc[i, "lead_ug_per_L"] = (
+            f"<{_limit('lead_ug_per_L', 0.5, frame.loc[i, 'campaign']):g}")
     return frame
+
+
+def _limit(name: str, dl: float, campaign: str) -> float:
+    """The laboratory's detection limit for ``name`` in ``campaign``."""
+    if name == "lead_ug_per_L" and campaign == "2025 spring":
+        return 0.2                                     # the new instrument
+    return dl
