@@ -121,13 +121,14 @@ def permutation_model_chunk(x, xc, lab, gather, unit_ptr, runs, blk_lo, blk_stop
                     acc2 = 0.0
                     c_lo = cell_lo[c]
                     start = c_lo if c_lo > lo else lo + 1
-                    for i in range(cell_hi[c] - 1, start - 1, -1):
-                        # j uniform on lo..i (Lemire's multiply with rejection).
-                        j, state = _draw_upto(state, inc, np.uint64(i - lo + 1))
-                        jj = lo + j
-                        v = buf[jj]
-                        buf[jj] = buf[i]
-                        buf[i] = v
+                    # Positions relative to the block (the one-way loop's form).
+                    view = buf[lo:cell_hi[c]]
+                    for i in range(cell_hi[c] - lo - 1, start - lo - 1, -1):
+                        # j uniform on 0..i (Lemire's multiply with rejection).
+                        j, state = _draw_upto(state, inc, np.uint64(i + 1))
+                        v = view[j]
+                        view[j] = view[i]
+                        view[i] = v
                         acc += v
                         acc2 += v * v
                     if start > c_lo:          # position lo, left in place
@@ -144,13 +145,13 @@ def permutation_model_chunk(x, xc, lab, gather, unit_ptr, runs, blk_lo, blk_stop
                 # shuffle of the block (as many draws as the partial one
                 # when its first cell has one plot); the sums are gathered
                 # by unit after all blocks are shuffled.
-                for i in range(blk_hi[bl] - 1, lo, -1):
-                    # j uniform on lo..i (Lemire's multiply with rejection).
-                    j, state = _draw_upto(state, inc, np.uint64(i - lo + 1))
-                    jj = lo + j
-                    v = buf[jj]
-                    buf[jj] = buf[i]
-                    buf[i] = v
+                view = buf[lo:blk_hi[bl]]
+                for i in range(blk_hi[bl] - lo - 1, 0, -1):
+                    # j uniform on 0..i (Lemire's multiply with rejection).
+                    j, state = _draw_upto(state, inc, np.uint64(i + 1))
+                    v = view[j]
+                    view[j] = view[i]
+                    view[i] = v
             if q > 0:
                 # The block's positions are final: u += X^c' r* over them.
                 for i in range(lo, blk_hi[bl]):
