@@ -380,7 +380,8 @@ def test_steel_dwass_and_steel_on_insectsprays(sprays):
     ref = stats.studentized_range.sf(q, sprays.k, np.inf)
     np.testing.assert_allclose(tab["p_adjusted"], np.maximum(ref, tab["p_unadjusted"]),
                                rtol=1e-6, atol=1e-12)
-    # the sprays fall in two sets: A, B, F (high counts) against C, D, E (Beall 1942)
+    # the sprays fall in two sets: A, B, F (high counts) against C, D, E (Beall 1942,
+    # from memory; the usual reading of these data)
     high, low = {"A", "B", "F"}, {"C", "D", "E"}
     for _, row in tab.iterrows():
         between = ({row.group_a, row.group_b} & high) and ({row.group_a, row.group_b} & low)
