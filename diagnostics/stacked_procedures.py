@@ -6,10 +6,11 @@ for a procedure and a family, a boolean array ``(R, m)``: which comparisons
 the procedure declares different in each replicate, at one alpha.
 
 * Pooled procedures (Fisher's LSD, Bonferroni, Šidák, Holm, Benjamini–
-  Hochberg, Tukey–Kramer, Scheffé, Dunnett): the t statistics of every row
+  Hochberg, Tukey–Kramer, Scheffé, Dunnett, multivariate-t): the t statistics of every row
   from its group means and the pooled variance; the df N - k is the same in
   every row, so each procedure's critical value is computed once
-  (studentized range, F, Dunnett's multivariate t) and a rejection is one
+  (studentized range, F, Dunnett's multivariate t, the general multivariate
+  t of the family's correlation) and a rejection is one
   comparison; step-wise rules adjust the rows' p-values along the
   comparisons axis (:mod:`famwise.procedures.adjust`).
 * Unequal-variance procedures: Games–Howell and Dunnett's T3 through the
@@ -111,6 +112,16 @@ def _dunnett_crit(alpha: float, lam: tuple, df: int) -> float:
     return float(dist.dunnett_ppf(1.0 - alpha, np.array(lam), df))
 
 
+@lru_cache(maxsize=64)
+def _mvt_crit(alpha: float, w_bytes: bytes, shape: tuple, n: tuple, df: int) -> float:
+    """Critical value of max |T| for the pooled contrasts (correlation from w and n)."""
+    from ..distributions.multivariate_t import max_t_ppf
+    w = np.frombuffer(w_bytes).reshape(shape)
+    cov = (w / np.asarray(n)) @ w.T
+    se = np.sqrt(np.diag(cov))
+    return float(max_t_ppf(1.0 - alpha, cov / np.outer(se, se), df, tolerance=2.5e-4).value)
+
+
 def _involved(family: Family) -> int:
     return int(np.unique(family.pairs).size) if family.pairs is not None else family.k
 
@@ -126,9 +137,13 @@ def closed_form_rejects(name: str, family: Family, stack: Stack, alpha: float,
     m = family.m
     means, variances = stack.means, stack.vars
     if name in ("lsd", "bonferroni", "sidak", "holm", "bh", "tukey-kramer", "scheffe",
-                "dunnett"):
+                "dunnett", "multivariate-t"):
         t, df = pooled_t(w, means, variances, n)
         a = np.abs(t)
+        if name == "multivariate-t":
+            # exact single-step maximum of the pooled t's (famwise.distributions.multivariate_t)
+            return a >= _mvt_crit(alpha, np.ascontiguousarray(w, float).tobytes(), w.shape,
+                                  tuple(float(x) for x in n), df)
         if name == "tukey-kramer":
             # Tukey (1953), Kramer (1956): |t| sqrt(2) against q(1 - alpha; k', N - k).
             return _SQRT2 * a >= _range_crit(alpha, _involved(family), df)

@@ -23,6 +23,9 @@ _BOUND_SE = 4.0                      # bound = 4 standard errors (t_9: 99.7%)
 _SEED = 20150917                     # fixed: the shifts of the randomized rule
 _N_START = 512                       # points per randomization in the first block
 _N_MAX = 1 << 16                     # cap on points per randomization
+_BUDGET_S = 20.0                     # work cap of one call, in seconds of kernel time
+_SEC_PER_RANK = 6e-8                 # kernel time per point: per variable (3 special functions)
+_SEC_PER_NZ = 2e-9                   # ... and per nonzero coefficient of the staircase
 
 
 class QMCAccuracyWarning(FamwiseWarning, RuntimeWarning):
@@ -55,6 +58,8 @@ class _Integrator:
         shifts = gen.random((_RANDOMIZATIONS, self.dim + 1))
         self.shifts = np.ascontiguousarray(shifts[:, :self.dim])
         self.s_shift = shifts[:, self.dim].copy()
+        # rough kernel time of one point at one value (for the work cap)
+        self.eval_seconds = _SEC_PER_RANK * stair.rank + _SEC_PER_NZ * stair.val.size
         alphas = _kronecker(self.dim + 1)
         self.alphas = np.ascontiguousarray(alphas[:self.dim])
         self.s_alpha = float(alphas[self.dim])
@@ -134,18 +139,22 @@ def _exact_one(c, nu, two_sided):
 
 
 def _integrate(integ: _Integrator, c, tolerance, fixed_n=None, *, shared=False,
-               decide_at=None, warn=True):
+               decide_at=None, warn=True, budget=_BUDGET_S):
     """Sums at each c, doubling the points until each error bound meets its target.
 
     ``fixed_n``: run exactly that many points per randomization.  ``shared``:
     keep every value running until all meet their targets, so all share one
     rule (needed to interpolate between them).  ``decide_at``: a level (alpha)
     whose side each probability should be settled on: the target shrinks to
-    half the distance to it, down to a tenth of the tolerance.
+    half the distance to it, down to a tenth of the tolerance.  ``budget``:
+    the work cap in seconds of kernel time for all values together.
     Returns (sf, cdf, error, points, n) with n the points per randomization
     of the last block's end.
     """
     nc = c.size
+    # work cap: about _BUDGET_S seconds of kernel time for all values together
+    n_cap = int(budget / (integ.eval_seconds * _RANDOMIZATIONS * max(nc, 1)))
+    n_cap = min(_N_MAX, max(_N_START, n_cap))
     f_tot = np.zeros((_RANDOMIZATIONS, nc))
     g_tot = np.zeros((_RANDOMIZATIONS, nc))
     n_used = np.zeros(nc, np.int64)
@@ -177,13 +186,13 @@ def _integrate(integ: _Integrator, c, tolerance, fixed_n=None, *, shared=False,
             active &= ~met
             if not active.any():
                 break
-        if n >= _N_MAX:
+        if 2 * n > n_cap:
             if warn:
                 late = ~met
                 warnings.warn(QMCAccuracyWarning(
                     f"multivariate t: the error bound of {int(late.sum())} probability(ies) "
-                    f"is still above its target after {n * _RANDOMIZATIONS} points "
-                    f"(largest {float(err[late].max()):.2g}); it is reported as it is"),
+                    f"is still above its target after {n * _RANDOMIZATIONS} points, the work "
+                    f"cap (largest {float(err[late].max()):.2g}); it is reported as it is"),
                     stacklevel=4)
             break
         block = n                                   # doubling

@@ -112,6 +112,12 @@ _METHOD_BM = ProcedureOption(
     "'permutation' (all labels permuted, B resamples) or 'exact' (every assignment, "
     "tiny designs)", choices=("permutation", "exact"))
 
+_QMC_TOL = ProcedureOption(
+    "tolerance", "float", 1e-3,
+    "target error bound (4 quasi-Monte Carlo standard errors) of adjusted p-values of 0.05 "
+    "or more, smaller below and near alpha; the critical value gets a quarter of it",
+    low=1e-6, high=0.1)
+
 
 @dataclass(frozen=True)
 class ProcedureInfo:
@@ -180,6 +186,12 @@ CATALOGUE: dict[str, ProcedureInfo] = {p.name: p for p in [
                   ("vs-reference",),
                   "Each group against a reference, equal variances; one- or "
                   "two-sided.", designs=_MODEL),
+    ProcedureInfo("multivariate-t", "famwise.procedures.multivariate", "multivariate_t",
+                  "classical", _ALL,
+                  "Exact single-step adjustment from the multivariate t with the "
+                  "estimates' own correlation, for any family; the choice when adjusted "
+                  "means are correlated (missing plots, covariates).", designs=_MODEL,
+                  options=(_QMC_TOL,)),
     ProcedureInfo("welch", "famwise.procedures.unequal", "welch", "unequal", _ALL,
                   "Welch t with Satterthwaite df for each comparison, unadjusted."),
     ProcedureInfo("welch-holm", "famwise.procedures.unequal", "welch_holm", "unequal", _ALL,
