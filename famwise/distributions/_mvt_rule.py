@@ -138,6 +138,17 @@ def _exact_one(c, nu, two_sided):
     return np.minimum(sf, 1.0)
 
 
+def _caller_level() -> int:
+    """Stack level of the first frame outside famwise (where the warning points)."""
+    import sys
+
+    level, frame = 1, sys._getframe(1)
+    while frame is not None and frame.f_globals.get("__name__", "").startswith("famwise"):
+        level += 1
+        frame = frame.f_back
+    return level
+
+
 def _integrate(integ: _Integrator, c, tolerance, fixed_n=None, *, shared=False,
                decide_at=None, warn=True, budget=_BUDGET_S):
     """Sums at each c, doubling the points until each error bound meets its target.
@@ -193,7 +204,7 @@ def _integrate(integ: _Integrator, c, tolerance, fixed_n=None, *, shared=False,
                     f"multivariate t: the error bound of {int(late.sum())} probability(ies) "
                     f"is still above its target after {n * _RANDOMIZATIONS} points, the work "
                     f"cap (largest {float(err[late].max()):.2g}); it is reported as it is"),
-                    stacklevel=4)
+                    stacklevel=_caller_level())
             break
         block = n                                   # doubling
     return sf, cdf, err, n_used * _RANDOMIZATIONS, n
