@@ -63,9 +63,17 @@ def load_data(data, response=None, group=None, *, block=None, covariates=None,
             "covariates=...))")
     intake = _load(data, response, group, block=block, covariates=covariates,
                    **read_options)
-    if intake.layout.design is not None:
+    lay = intake.layout
+    if lay.design is not None:
+        if lay.censored is not None and lay.censored.any():
+            raise FamwiseInputError(
+                f"{int(lay.censored.sum())} value(s) of {lay.response!r} in {lay.source!r} are "
+                f"non-detects (below a detection limit), and the model with blocks or "
+                f"covariates needs measured values; set them aside with nondetects='drop' "
+                f"(CLI --nondetects drop; this biases means upward) or compare without "
+                f"block= and covariates= on the censored route")
         from .model import fit_model
-        fit_model(intake.layout)
+        fit_model(lay)
     return intake
 
 

@@ -205,3 +205,15 @@ def test_one_way_procedure_on_a_blocked_layout_is_refused(tmp_path):
                                                 r"blocks 'rep'"):
         famwise.compare(write(tmp_path, rcbd()), "nitrate", "mix", block="rep",
                         procedure="games-howell")
+
+
+def test_non_detects_with_blocks_need_to_be_set_aside(tmp_path):
+    df = rcbd().astype({"nitrate": object})
+    df.loc[3, "nitrate"] = "<0.5"
+    path = write(tmp_path, df)
+    with pytest.raises(FamwiseInputError, match=r"1 value\(s\) of 'nitrate' .* are "
+                                                r"non-detects .* nondetects='drop'"):
+        famwise.compare(path, "nitrate", "mix", block="rep", seed=1)
+    res = famwise.compare(path, "nitrate", "mix", block="rep", seed=1, nondetects="drop",
+                          crosscheck=False)
+    assert [d.reason for d in res.ledger.dropped] == ["below-limit"]
