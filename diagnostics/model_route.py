@@ -75,12 +75,12 @@ def model_crosscheck(procedure: str, family: Family, layout: Layout) -> str | No
     if info.route in ("classical", "fdr") or procedure == "multivariate-t":
         return _available(PERMUTATION)
     fit = fit_model(layout)
+    exact = (fit.means_correlated and "multivariate-t" in CATALOGUE
+             and family.m <= Policy().multivariate_t_max_comparisons)
     if family.kind == "vs-reference":
-        return "multivariate-t" if fit.means_correlated and "multivariate-t" in CATALOGUE \
-            else "dunnett"
+        return "multivariate-t" if exact else "dunnett"
     if family.kind == "all-pairs":
-        return "multivariate-t" if fit.means_correlated and "multivariate-t" in CATALOGUE \
-            else "tukey-kramer"
+        return "multivariate-t" if exact else "tukey-kramer"
     return "scheffe"
 
 
@@ -174,7 +174,18 @@ def choose_model(findings: Findings, family: Family, layout: Layout, policy: Pol
             reasons.append("Procedures on the model's pooled error mean square are used "
                            "(see the warnings for the checks that argue against them).")
         exact = "multivariate-t" in CATALOGUE and "model" in CATALOGUE["multivariate-t"].designs
-        if fit.means_correlated and exact:
+        too_many = family.m > policy.multivariate_t_max_comparisons
+        if fit.means_correlated and exact and too_many:
+            reasons.append(f"The adjusted means are correlated, but the family has {family.m} "
+                           f"comparisons, more than the policy's "
+                           f"{policy.multivariate_t_max_comparisons} for the exact "
+                           f"multivariate-t adjustment (its integral would take tens of "
+                           f"seconds or more); the one-way forms on each comparison's own "
+                           f"standard error are used instead.")
+            alternatives.append(Alternative(
+                "multivariate-t", f"exact, but slow for {family.m} comparisons "
+                                  f"(policy multivariate_t_max_comparisons)"))
+        if fit.means_correlated and exact and not too_many:
             proc = "multivariate-t"
             reasons.append("The adjusted means are correlated (covariates or incomplete "
                            "blocks), so the exact adjustment from the multivariate t with "

@@ -54,6 +54,15 @@ Defaults and where they come from:
   (*Introduction to Robust Estimation and Hypothesis Testing*, from
   memory).
 * ``trimmed_min_n = 5``: floor(0.2 n) >= 1 from n = 5.
+* ``multivariate_t_max_comparisons = 45``: with correlated adjusted means
+  the route prefers the exact ``multivariate-t`` adjustment for families of
+  up to this many comparisons (all pairs of 10 groups); its quasi-Monte
+  Carlo integral takes seconds there and tens of seconds for all pairs of 20
+  (``tests/bench/bench_multivariate_t.py``).  Larger families keep
+  Tukey-Kramer's form on each difference's own standard error, which stays
+  conservative with correlated means (Hayter 1984), or Dunnett with the
+  nearest product correlation (Hsu 1992), and the route says so.  Our
+  policy, a trade of time against exactness (no source).
 * ``censored_warn_percent = 50.0``: a group with more non-detects than this
   share carries little information on its own; the route warns.  Common
   practice, no source (Helsel 2012 discusses 50% and 80% as points where
@@ -106,6 +115,7 @@ class Policy:
     rank_permutation_below: int = 10
     gross_outlier_route: bool = True
     trimmed_min_n: int = 5
+    multivariate_t_max_comparisons: int = 45
     censored_warn_percent: float = 50.0
     peto_when_limits_differ: bool = True
     log_slope_tolerance: float = 0.35

@@ -292,3 +292,22 @@ def test_model_calibration_keeps_bonferroni_within_its_level():
     assert rows.loc["holm", "fwer"] == rows.loc["bonferroni", "fwer"]
     assert rows.loc["scheffe", "fwer"] <= rows.loc["tukey-kramer", "fwer"]
     assert cal.design["blocks"] == ["plot"]
+
+
+def test_route_keeps_the_one_way_form_for_a_family_too_large_for_the_exact_integral():
+    # Our policy (no source): multivariate-t's integral costs tens of seconds for
+    # all pairs of 20 groups (tests/bench/bench_multivariate_t.py), so above
+    # multivariate_t_max_comparisons the route keeps Tukey-Kramer's form, which stays
+    # conservative with correlated means (Hayter 1984), and says why.
+    from famwise.diagnostics import Policy, run_checks
+    from famwise.diagnostics.route import choose
+    df, *spec = load_case("anorexia")
+    lay = make_layout(df, *spec)
+    fam = all_pairs(lay.labels)               # 3 comparisons
+    assert fit_model(lay).means_correlated
+    small = Policy().replace(multivariate_t_max_comparisons=2)
+    route = choose(run_checks(lay, small), fam, lay, small)
+    assert route.route == "classical"         # anorexia's residuals pass the checks
+    assert route.procedure == "tukey-kramer"
+    assert any("more than the policy's 2" in r for r in route.reasons)
+    assert "multivariate-t" in [a.procedure for a in route.alternatives]
