@@ -70,7 +70,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from .kernels import _M32, _MULT, _S32, _TWO32, _family_stats, _pcg_init, _pcg_out, _tally
+from .kernels import _draw_upto, _family_stats, _pcg_init, _tally
 
 __all__ = ["score_sum_chunk", "placement_point_chunk", "placement_interval_chunk",
            "MANTEL", "FIXED", "BRUNNER_MUNZEL"]
@@ -107,19 +107,7 @@ def score_sum_chunk(x, seg_lo, seg_hi, seg_group, n, largest, tot_s, vm, row_ptr
             g = seg_group[s_]
             acc = 0.0
             for i in range(seg_hi[s_] - 1, seg_lo[s_] - 1, -1):
-                bound = np.uint64(i + 1)
-                old = state
-                state = old * _MULT + inc
-                prod = _pcg_out(old) * bound
-                low = prod & _M32
-                if low < bound:
-                    thresh = (_TWO32 - bound) % bound
-                    while low < thresh:
-                        old = state
-                        state = old * _MULT + inc
-                        prod = _pcg_out(old) * bound
-                        low = prod & _M32
-                j = np.int64(prod >> _S32)
+                j, state = _draw_upto(state, inc, np.uint64(i + 1))
                 v = buf[j]
                 buf[j] = buf[i]
                 buf[i] = v
@@ -138,19 +126,7 @@ def score_sum_chunk(x, seg_lo, seg_hi, seg_group, n, largest, tot_s, vm, row_ptr
 def _shuffle(lab, state, inc):
     """Full Fisher-Yates pass over ``lab`` in place; returns the new state."""
     for i in range(lab.size - 1, 0, -1):
-        bound = np.uint64(i + 1)
-        old = state
-        state = old * _MULT + inc
-        prod = _pcg_out(old) * bound
-        low = prod & _M32
-        if low < bound:
-            thresh = (_TWO32 - bound) % bound
-            while low < thresh:
-                old = state
-                state = old * _MULT + inc
-                prod = _pcg_out(old) * bound
-                low = prod & _M32
-        j = np.int64(prod >> _S32)
+        j, state = _draw_upto(state, inc, np.uint64(i + 1))
         g = lab[j]
         lab[j] = lab[i]
         lab[i] = g
@@ -204,19 +180,7 @@ def _pair_stats(acc_a, acc_q2, acc_qx, n, mode, pa, pb, fixed_v, se2_floor, sign
 @njit(cache=True, nogil=True, inline="always")
 def _fy_step(lab, i, state, inc):
     """Fisher-Yates step at position i (j uniform on 0..i); returns the state."""
-    bound = np.uint64(i + 1)
-    old = state
-    state = old * _MULT + inc
-    prod = _pcg_out(old) * bound
-    low = prod & _M32
-    if low < bound:
-        thresh = (_TWO32 - bound) % bound
-        while low < thresh:
-            old = state
-            state = old * _MULT + inc
-            prod = _pcg_out(old) * bound
-            low = prod & _M32
-    j = np.int64(prod >> _S32)
+    j, state = _draw_upto(state, inc, np.uint64(i + 1))
     lv = lab[j]
     lab[j] = lab[i]
     lab[i] = lv
