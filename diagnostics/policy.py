@@ -81,6 +81,43 @@ Defaults and where they come from:
   tolerance is our policy (no source): the slope of a few groups' SDs is
   noisy, and powers between -0.35 and 0.35 differ little from the log in
   practice.
+* ``power_route = False``: when True, the route's last step calibrates at
+  the observed design (:mod:`famwise.diagnostics.power_choice`): each
+  candidate's familywise error under the complete null and its power
+  against one shifted comparison, from ``power_replicates = 1000`` simulated
+  data sets (errors resampled from the observed standardised residuals), and
+  takes the most powerful candidate that holds.  Off by default, from the
+  error-rate matrix's power rows (README; ``tests/test_error_matrix.py``,
+  400 null and 400 shifted data sets per design): the step keeps the
+  familywise error within alpha + 3 SE on all six designs and raises the
+  power on unbalanced equal-SD normal data (0.282 -> 0.362), but it stays
+  more than 0.05 below the best valid candidate there (Tukey–Kramer, 0.515)
+  and on balanced skewed data (0.318 against the permutation max-T's
+  0.715), and it lowers the power where small groups carry large SDs (0.233
+  -> 0.180, by moving data sets whose observed SDs make Dunnett's T3 look
+  liberal to the bootstrap).  The calibration sees the observed SDs and
+  residuals, which in groups of four to ten are too noisy a picture of the
+  true ones.  1,000 replicates give a binomial SE of 0.007 at alpha = 0.05
+  and keep the step near 0.2 s at N = 50, k = 6
+  (``tests/bench/bench_power_route.py``).
+* ``power_at = 0.5``: the alternative, without a margin, shifts one
+  comparison by the number of standard errors at which a Bonferroni z test
+  has this power; procedures' powers differ most at power one half (the
+  slope of a location-shift power curve is largest there; normal theory,
+  common practice, no source).  With a margin, the shift is the margin.
+* ``power_fwer_se = 2.0``: a candidate holds when its estimated FWER is at
+  most alpha + 2 Monte Carlo SE, the rule of the quick calibration and the
+  calibration table (our policy, no source).
+* ``power_gain_min = 0.02``: the rules' choice, when it holds, is replaced
+  only by a candidate at least this much more powerful (our policy, no
+  source): smaller gains are within the Monte Carlo noise of the power
+  differences at 1,000 replicates, and the issue's tolerance is 0.05.
+* ``power_closed_when_skewed = False``: when the rules chose resampling
+  because the residuals are far from normal, only the resampling candidates
+  compete in the power step: the few residuals of a small study
+  under-represent a skewed tail, and on the matrix's skewed designs the
+  calibration at the residual pool misranked the closed forms (our policy,
+  from that evidence; see diagnostics/power_choice.py).
 """
 
 from __future__ import annotations
@@ -120,6 +157,12 @@ class Policy:
     peto_when_limits_differ: bool = True
     log_slope_tolerance: float = 0.35
     log_min_groups: int = 3
+    power_route: bool = False
+    power_replicates: int = 1000
+    power_at: float = 0.5
+    power_fwer_se: float = 2.0
+    power_gain_min: float = 0.02
+    power_closed_when_skewed: bool = False
 
     def replace(self, **changes) -> "Policy":
         """Return a copy with ``changes`` applied (names checked)."""
@@ -141,6 +184,10 @@ class Policy:
             if kind in (int, float) and value <= 0:
                 raise FamwiseInputError(f"policy setting {key!r} must be positive; "
                                         f"got {value!r}")
+        for key in ("power_at",):
+            if key in changes and not 0.0 < changes[key] < 1.0:
+                raise FamwiseInputError(f"policy setting {key!r} must lie strictly between "
+                                        f"0 and 1; got {changes[key]!r}")
         return dataclasses.replace(self, **changes)
 
     def to_dict(self) -> dict:

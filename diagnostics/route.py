@@ -40,8 +40,8 @@ from ..procedures.catalogue import CATALOGUE, check_procedure
 from .check import Findings
 from .policy import Policy
 
-__all__ = ["Route", "Alternative", "choose", "crosscheck_procedure", "shape_poor",
-           "spread_unequal"]
+__all__ = ["Route", "Alternative", "choose", "crosscheck_procedure", "power_step",
+           "shape_poor", "spread_unequal"]
 
 
 @dataclass(frozen=True)
@@ -176,16 +176,48 @@ def _unequal_all_pairs(layout, policy, alpha, seed):
                             f"{gh['fwer']:.3f})")]
 
 
+def power_step(route: Route, layout: Layout, family: Family, policy: Policy, alpha: float,
+               seed, margin: float | None = None) -> Route:
+    """The route's last step (``policy.power_route``): keep the rules' choice, or
+    replace it by the most powerful candidate that holds alpha at the observed
+    design (:func:`famwise.diagnostics.power_choice.choose_by_power`)."""
+    import dataclasses
+    if not policy.power_route or route.chosen_by != "policy" \
+            or route.route not in ("classical", "unequal", "resample"):
+        return route
+    from .power_choice import choose_by_power
+    picked = choose_by_power(route.procedure, layout, family, policy, alpha=alpha,
+                             seed=seed, margin=margin)
+    if picked is None:
+        return route
+    record = picked["record"]
+    if route.calibration is not None:
+        record = dict(record, quick=route.calibration)
+    proc = picked["procedure"]
+    alternatives = route.alternatives
+    if proc != route.procedure:
+        alternatives = tuple(a for a in alternatives if a.procedure != proc) + (
+            Alternative(route.procedure, picked["set_aside"]),)
+    return dataclasses.replace(
+        route, route=CATALOGUE[proc].route, procedure=proc,
+        reasons=route.reasons + (picked["sentence"],), alternatives=alternatives,
+        calibration=record, crosscheck=crosscheck_procedure(proc, family))
+
+
 def choose(findings: Findings, family: Family, layout: Layout, policy: Policy | None = None,
            procedure: str = "auto", alpha: float = 0.05, seed: int | None = 0,
-           scale: str | None = None) -> Route:
+           scale: str | None = None, margin: float | None = None) -> Route:
     """Choose the procedure for ``family`` from the checks, or record a user's choice.
+
+    ``margin`` (the user's smallest difference that matters) sets the
+    alternative of the power step (:func:`power_step`).
 
     ``scale`` is the transform already applied ("log" or None); on the
     original scale, a spread-level slope near 1 adds a proposal of the log
     scale (:func:`log_proposal`).
     """
-    route = _choose(findings, family, layout, policy or Policy(), procedure, alpha, seed)
+    route = _choose(findings, family, layout, policy or Policy(), procedure, alpha, seed,
+                    margin)
     if scale is None:
         proposal = log_proposal(layout, policy or Policy())
         if proposal:
@@ -213,7 +245,7 @@ def log_proposal(layout: Layout, policy: Policy) -> str | None:
 
 
 def _choose(findings: Findings, family: Family, layout: Layout, policy: Policy,
-            procedure: str, alpha: float, seed) -> Route:
+            procedure: str, alpha: float, seed, margin=None) -> Route:
     poor, unequal = shape_poor(findings), spread_unequal(findings)
     warnings = []
     small = findings.get("small-groups")
@@ -359,5 +391,6 @@ def _choose(findings: Findings, family: Family, layout: Layout, policy: Policy,
     if small.verdict != "ok" and route == "classical":
         reasons.append("Some groups are small; the pooled procedures remain exact under "
                        "normal errors, but the checks have little power there.")
-    return Route(route, proc, "policy", tuple(reasons), tuple(alternatives), (),
-                 tuple(warnings), calibration, crosscheck_procedure(proc, family))
+    return power_step(Route(route, proc, "policy", tuple(reasons), tuple(alternatives), (),
+                            tuple(warnings), calibration, crosscheck_procedure(proc, family)),
+                      layout, family, policy, alpha, seed, margin)

@@ -13,9 +13,9 @@ declare different?  This module answers it on stacked replicates:
    route's choice depends on a replicate only through two facts, "shape
    poor" and "spread unequal", so :func:`route_table` asks
    :func:`famwise.diagnostics.route.choose` once for each of the four
-   combinations (the quick Games–Howell calibration, when the policy asks for
-   it, is evaluated there, once, at the design's own SDs) and each row looks
-   its procedure up;
+   combinations (the quick Games–Howell calibration and the power step,
+   when the policy asks for them, are evaluated there, once, at the
+   design's own SDs and residuals) and each row looks its procedure up;
 4. run the procedures on all rows at once
    (:mod:`famwise.diagnostics.stacked_procedures`; resampling procedures by
    the warp-speed method), and give the pipeline each row's routed decisions.

@@ -242,7 +242,8 @@ def compare(data, response=None, group=None, *, family="all-pairs", reference=No
         layout = log_layout(layout, scale)
     fam = build_family(layout.labels, family, reference, contrasts)
     findings = run_checks(layout, pol)
-    route = choose(findings, fam, layout, pol, procedure, alpha, seed=seed, scale=scale.name)
+    route = choose(findings, fam, layout, pol, procedure, alpha, seed=seed, scale=scale.name,
+                   margin=margin)
     for w in route.warnings:
         warnings.warn(SmallGroupWarning(w), stacklevel=2)
     resampling_options = dict(resamples=resamples, seed=seed, n_jobs=n_jobs, backend=backend,

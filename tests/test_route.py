@@ -13,7 +13,9 @@ from famwise.diagnostics.route import choose, crosscheck_procedure
 from famwise.core.families import all_pairs, contrasts, vs_reference
 from famwise.core.layout import Layout
 
-NO_CAL = Policy(calibrate_candidates=False)
+# These tests exercise the rules; the power step that may follow them
+# (policy.power_route) is tested in tests/test_power_route.py.
+NO_CAL = Policy(calibrate_candidates=False, power_route=False)
 
 
 def layout(seed, sizes, sds, shape="normal", means=None):
@@ -235,7 +237,8 @@ def test_small_unbalanced_designs_do_not_rely_on_a_common_variance():
 
 def test_quick_calibration_can_decide_between_games_howell_and_t3():
     lay = layout(15, [4, 6, 8, 10, 20, 30], [4, 3, 2, 1.5, 1, 1])
-    r = route_of(lay, policy=Policy(calibrate_candidates=True, calibration_replicates=2000))
+    r = route_of(lay, policy=Policy(calibrate_candidates=True, calibration_replicates=2000,
+                                    power_route=False))
     assert r.procedure in ("dunnett-t3", "games-howell")
     est = r.calibration["estimates"]
     assert set(est) == {"games-howell", "dunnett-t3"}

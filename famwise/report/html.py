@@ -317,9 +317,20 @@ def _why(rec) -> str:
         out.append(f"<p>Scale: {_e(route['proposal'])}</p>")
     if getattr(rec, "transform", None):
         out.append(f"<p>Scale: {_e(rec.transform['sentence'])}.</p>")
-    if route.get("calibration"):
-        out.append("<p>The quick calibration used to choose:</p>"
-                   + _value_html(route["calibration"]))
+    cal = route.get("calibration")
+    if cal and cal.get("candidates"):
+        out.append("<p>The calibration at this design used to choose ("
+                   + _e(cal["method"]) + f"; {_e(cal['replicates'])} simulated data sets; "
+                   f"alternative: {_e(cal['alternative']['sentence'])}; a candidate holds "
+                   f"when {_e(cal['limit_rule'])}):</p>"
+                   + _table(["procedure", "familywise error", "SE", "holds", "power"],
+                            [[c["procedure"], c["fwer"], c["fwer_se"], bool(c["holds"]),
+                              c["power"]] for c in cal["candidates"]]))
+        if cal.get("quick"):
+            out.append("<p>The quick calibration between Games-Howell and Dunnett's T3:</p>"
+                       + _value_html(cal["quick"]))
+    elif cal:
+        out.append("<p>The quick calibration used to choose:</p>" + _value_html(cal))
     return "".join(out)
 
 
