@@ -28,6 +28,7 @@ from scipy import stats
 from famwise.core.families import all_pairs, vs_reference
 from famwise.core.layout import Layout
 from famwise.diagnostics import Policy, run_checks
+from famwise.diagnostics.robust_route import gross_values
 from famwise.diagnostics.route import choose
 from famwise.diagnostics.shape import anderson_darling as ad_one
 from famwise.diagnostics.simulate import Scenario, draw, route_table, simulate
@@ -116,16 +117,28 @@ def test_verdicts_and_route_equal_the_one_data_set_path(n, sd, skew):
     fam = all_pairs([str(i) for i in range(b.k)])
     layout0 = Layout.from_groups([x[0, s] for s in b.slices()])
     table = route_table(fam, layout0, policy)
+    robust = 0
     for r in range(len(x)):
         lay = Layout.from_groups([x[r, s] for s in b.slices()])
         one = run_checks(lay, policy)
         for name in CHECKS:
             c = one.get(name)
             assert found.get(name).verdict[r] == VERDICT[c.verdict], (r, name, c)
-        proc = choose(one, fam, lay, policy).procedure
-        assert table[(bool(found.shape_poor[r]), bool(found.spread_unequal[r]))] == proc
+        route = choose(one, fam, lay, policy)
+        if route.route == "robust":
+            # A gross value standing apart from well-shaped data takes the robust
+            # route (trimmed means or ranks), which the stacked engine does not
+            # model yet (DEVELOPERS.md, "The simulation engine"): such a data set
+            # must hold a value past the policy's gross threshold.
+            assert gross_values(one, policy), r
+            robust += 1
+            continue
+        assert table[(bool(found.shape_poor[r]), bool(found.spread_unequal[r]))] == \
+            route.procedure
     # the designs reach more than one route between them
     assert found.shape_poor.any() or found.spread_unequal.any() or not skew
+    # and the stacked route agrees with the rules everywhere else
+    assert robust < len(x)
 
 
 @pytest.mark.parametrize("family_kind", ["all-pairs", "vs-reference"])
