@@ -36,6 +36,7 @@ from ..model import fit_model
 from ..procedures.catalogue import CATALOGUE, check_design
 from .check import Findings
 from .policy import Policy
+from .pooled_choice import pooled_procedure
 
 __all__ = ["choose_model", "model_crosscheck", "model_summary"]
 
@@ -92,7 +93,7 @@ def _one_way_set_aside(design) -> str:
 
 def choose_model(findings: Findings, family: Family, layout: Layout, policy: Policy,
                  procedure: str, alpha: float, poor: list[str], unequal: list[str],
-                 warnings: list[str], contrast_classical) -> dict:
+                 warnings: list[str]) -> dict:
     """Return the parts of the Route for a blocked or covariate layout.
 
     A dict with route, procedure, chosen_by, reasons, alternatives (pairs of
@@ -196,20 +197,12 @@ def choose_model(findings: Findings, family: Family, layout: Layout, policy: Pol
                     family.kind, "scheffe"),
                 "its one-way form is conservative or approximate when the adjusted means "
                 "are correlated"))
-        elif family.kind == "all-pairs":
-            proc = "tukey-kramer"
-            if fit.means_correlated:
+        else:
+            proc, why, aside = pooled_procedure(layout, family, alpha)
+            if proc == "tukey-kramer" and fit.means_correlated:
                 reasons.append("The adjusted means are correlated; Tukey-Kramer's form is "
                                "used on each difference's own standard error.")
-            alternatives += [Alternative("scheffe", "wider intervals for pairwise families"),
-                             Alternative("bonferroni", "more conservative than Tukey-Kramer")]
-        elif family.kind == "vs-reference":
-            proc = "dunnett"
-            alternatives.append(Alternative("bonferroni", "more conservative than Dunnett"))
-        else:
-            proc, why = contrast_classical(layout, family, alpha)
-            reasons.append(why)
-            alternatives.append(Alternative("scheffe" if proc == "sidak" else "sidak",
-                                            "longer intervals for this family"))
+            reasons += why
+            alternatives += aside
     return Route(route, proc, "policy", tuple(reasons), tuple(alternatives), (),
                  tuple(warnings), None, model_crosscheck(proc, family, layout))

@@ -32,13 +32,13 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import stats
 
 from ..core.families import Family
 from ..core.layout import Layout
 from ..procedures.catalogue import CATALOGUE, check_procedure
 from .check import Findings
 from .policy import Policy
+from .pooled_choice import pooled_procedure
 
 __all__ = ["Route", "Alternative", "choose", "crosscheck_procedure", "power_step",
            "shape_poor", "spread_unequal"]
@@ -92,25 +92,6 @@ def spread_unequal(findings: Findings) -> list[str]:
     return [findings.get(n).sentence for n in ("brown-forsythe", "sd-ratio",
                                                 "size-spread-pairing")
             if findings.get(n).verdict == "violated"]
-
-
-def _contrast_classical(layout: Layout, family: Family, alpha: float) -> tuple[str, str]:
-    """Šidák or Scheffé for a contrast family, whichever gives shorter intervals."""
-    m, k = family.m, layout.k
-    if layout.design is not None:
-        from ..model import fit_model
-        df = fit_model(layout).df
-    else:
-        df = layout.stats.df_error
-    sidak = stats.t.ppf(1 - (1 - (1 - alpha) ** (1 / m)) / 2, df)
-    scheffe = np.sqrt((k - 1) * stats.f.ppf(1 - alpha, k - 1, df))
-    if sidak <= scheffe:
-        return "sidak", (f"For {m} contrast{'s' if m > 1 else ''} fixed in advance, Šidák's "
-                         f"multiplier ({sidak:.3f}) is smaller than Scheffé's ({scheffe:.3f}); "
-                         f"use Scheffé if the contrasts were chosen after seeing the data.")
-    return "scheffe", (f"Scheffé's multiplier ({scheffe:.3f}) is smaller than Šidák's "
-                       f"({sidak:.3f}) for {m} contrasts, and it also covers contrasts "
-                       f"chosen after seeing the data.")
 
 
 def crosscheck_procedure(procedure: str, family: Family) -> str:
@@ -254,7 +235,7 @@ def _choose(findings: Findings, family: Family, layout: Layout, policy: Policy,
     if layout.design is not None:
         from .model_route import choose_model
         parts = choose_model(findings, family, layout, policy, procedure, alpha, poor, unequal,
-                             warnings, _contrast_classical)
+                             warnings)
         return Route(parts["route"], parts["procedure"], parts["chosen_by"], parts["reasons"],
                      tuple(Alternative(p, w) for p, w in parts["alternatives"]),
                      parts["against"], parts["warnings"], None, parts["crosscheck"])
@@ -376,18 +357,9 @@ def _choose(findings: Findings, family: Family, layout: Layout, policy: Policy,
         route = "classical"
         reasons.append("The residuals look close enough to normal and the spreads agree, so "
                        "procedures with a pooled variance are exact and the most powerful.")
-        if family.kind == "all-pairs":
-            proc = "tukey-kramer"
-            alternatives += [Alternative("scheffe", "wider intervals for pairwise families"),
-                             Alternative("bonferroni", "more conservative than Tukey-Kramer")]
-        elif family.kind == "vs-reference":
-            proc = "dunnett"
-            alternatives.append(Alternative("bonferroni", "more conservative than Dunnett"))
-        else:
-            proc, why = _contrast_classical(layout, family, alpha)
-            reasons.append(why)
-            alternatives.append(Alternative("scheffe" if proc == "sidak" else "sidak",
-                                            "longer intervals for this family"))
+        proc, why, aside = pooled_procedure(layout, family, alpha)
+        reasons += why
+        alternatives += [Alternative(p, w) for p, w in aside]
     if small.verdict != "ok" and route == "classical":
         reasons.append("Some groups are small; the pooled procedures remain exact under "
                        "normal errors, but the checks have little power there.")

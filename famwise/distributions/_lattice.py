@@ -31,7 +31,7 @@ Genz, A. (1992). Numerical computation of multivariate normal
 probabilities. *J. Comput. Graph. Statist.* 1(2):141-149.
 doi:10.1080/10618600.1992.10477010
 Genz, A. & Bretz, F. (2009). *Computation of Multivariate Normal and t
-Probabilities*. Lecture Notes in Statistics 195, Springer.
+Probabilities*. Springer, Berlin (monograph, vol. 195 of its statistics series).
 doi:10.1007/978-3-642-01689-9
 Wichura, M. J. (1988). Algorithm AS 241: the percentage points of the
 normal distribution. *Appl. Statist.* 37(3):477-484. doi:10.2307/2347330

@@ -77,7 +77,7 @@ Genz, A. & Bretz, F. (2002). Comparison of methods for the computation of
 multivariate t probabilities. *J. Comput. Graph. Statist.* 11(4):950-971.
 doi:10.1198/106186002394
 Genz, A. & Bretz, F. (2009). *Computation of Multivariate Normal and t
-Probabilities*. Lecture Notes in Statistics 195, Springer.
+Probabilities*. Springer, Berlin (monograph, vol. 195 of its statistics series).
 doi:10.1007/978-3-642-01689-9
 Richtmyer, R. D. (1951). The evaluation of definite integrals, and a
 quasi-Monte-Carlo method based on the properties of algebraic numbers.

@@ -40,7 +40,7 @@ Hothorn, T., Bretz, F. & Westfall, P. (2008). Simultaneous inference in
 general parametric models. *Biometrical Journal* 50(3):346-363.
 doi:10.1002/bimj.200810425
 Genz, A. & Bretz, F. (2009). *Computation of Multivariate Normal and t
-Probabilities*. Lecture Notes in Statistics 195, Springer.
+Probabilities*. Springer, Berlin (monograph, vol. 195 of its statistics series).
 doi:10.1007/978-3-642-01689-9
 """
 
