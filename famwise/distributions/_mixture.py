@@ -116,7 +116,7 @@ def _cheb_der(coef, width):
 # Compiled evaluation: tables, their derivatives, the outer integral over S
 # ---------------------------------------------------------------------------
 
-@njit(cache=True, nogil=True, inline="always")
+@njit(cache=True, nogil=True)
 def _cheb(coef, x0, width, x):
     npan = coef.shape[0]
     u = (x - x0) / width
@@ -135,7 +135,7 @@ def _cheb(coef, x0, width, x):
     return y * b1 - b2 + coef[i, 0]
 
 
-@njit(cache=True, nogil=True, inline="always")
+@njit(cache=True, nogil=True)
 def _log_upper(cu, meta, w):
     u0 = meta[0]
     uw = meta[1]
@@ -149,7 +149,7 @@ def _log_upper(cu, meta, w):
     return _cheb(cu, u0, uw, w)
 
 
-@njit(cache=True, nogil=True, inline="always")
+@njit(cache=True, nogil=True)
 def _dlog_upper(du, meta, w):
     """d log F / dw of the upper function (the derivative of _log_upper)."""
     u0 = meta[0]
@@ -162,7 +162,7 @@ def _dlog_upper(du, meta, w):
     return _cheb(du, u0, uw, w)
 
 
-@njit(cache=True, nogil=True, inline="always")
+@njit(cache=True, nogil=True)
 def _log1mexp(a):
     """log(1 - exp(a)) for a <= 0, accurately."""
     if a > -0.6931471805599453:
@@ -170,7 +170,7 @@ def _log1mexp(a):
     return math.log1p(-math.exp(a))
 
 
-@njit(cache=True, nogil=True, inline="always")
+@njit(cache=True, nogil=True)
 def _log_lower(cu, cl, meta, w):
     l0 = meta[5]
     lw = meta[6]
@@ -195,14 +195,14 @@ def _log_lower(cu, cl, meta, w):
     return _cheb(cl, l0, lw, w)
 
 
-@njit(cache=True, nogil=True, inline="always")
+@njit(cache=True, nogil=True)
 def _dlog_from_upper(cu, du, meta, w):
     """d/dw log(1 - F(w)) where the lower function is 1 - upper."""
     lu = min(_log_upper(cu, meta, w), -1e-300)
     return -_dlog_upper(du, meta, w) * math.exp(lu - _log1mexp(lu))
 
 
-@njit(cache=True, nogil=True, inline="always")
+@njit(cache=True, nogil=True)
 def _dlog_lower(cu, du, dl, meta, w):
     """d log(1 - F) / dw, the derivative of _log_lower (w > 0 for log tables)."""
     l0 = meta[5]
@@ -224,14 +224,14 @@ def _dlog_lower(cu, du, dl, meta, w):
     return _cheb(dl, l0, lw, w)
 
 
-@njit(cache=True, nogil=True, inline="always")
+@njit(cache=True, nogil=True)
 def _log_f(cu, cl, meta, w, upper):
     if upper:
         return _log_upper(cu, meta, w)
     return _log_lower(cu, cl, meta, w)
 
 
-@njit(cache=True, nogil=True, inline="always")
+@njit(cache=True, nogil=True)
 def _dlog_f(cu, du, dl, meta, w, upper):
     if upper:
         return _dlog_upper(du, meta, w)
@@ -273,7 +273,7 @@ def _chi_range(nu, depth):
     return tl, tr
 
 
-@njit(cache=True, nogil=True, inline="always")
+@njit(cache=True, nogil=True)
 def _psi(cu, cl, meta, q, nu, t, upper):
     em = math.expm1(t)                     # one transcendental: e^t and expm1(2t)
     return nu * (t - 0.5 * em * (em + 2.0)) + _log_f(cu, cl, meta, q * (1.0 + em), upper)

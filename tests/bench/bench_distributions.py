@@ -15,6 +15,7 @@ import numpy as np
 from scipy import stats
 
 from famwise import distributions as D  # the package re-exports famwise.distributions.simultaneous
+from famwise.distributions import simultaneous as S
 
 
 def best_of(fun, repeat=3):
@@ -67,7 +68,7 @@ def main():
     df = len(control) + sizes.sum() - 21
 
     def ours_dunnett():
-        D._dunnett_table.cache_clear()          # include the table build every time
+        S._dunnett_table.cache_clear()          # include the table build every time
         return D.dunnett_sf(np.abs(res.statistic), lam, df)
 
     ours, p1 = best_of(ours_dunnett)
