@@ -103,7 +103,7 @@ def _sizes(result) -> str:
     rows = [row + ("no" if (("auto" if row[0] == "automatic pipeline" else row[0]) in liberal)
                    else "yes",) for row in rows]
     body = _table(["procedure", "per group", "group sizes", f"power ({s['goal']})",
-                   "familywise error at the null", "holds its level at every size tried"],
+                   "familywise error at the null", "holds its level (over the sizes tried)"],
                   rows, numeric=(1, 3, 4))
     return _section("sizes", body + "<p>" + "</p><p>".join(
         _e(x) for x in plan_statements(result)[1:]) + "</p>")
