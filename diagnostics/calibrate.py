@@ -25,7 +25,7 @@ exactly when its single-step counterpart does (the first step is the same),
 so Holm's FWER equals Bonferroni's and each step-down resampling procedure's
 equals its single-step one; the table says so.  Welch–Dunnett's
 multivariate t is evaluated only in the replicates whose decision the
-marginal and Bonferroni bounds leave open.  Within the pipeline, the route's own
+marginal and Šidák bounds leave open.  Within the pipeline, the route's own
 quick Games–Howell / Dunnett T3 calibration (when the policy asks for it) is
 evaluated once at the observed design, not in every replicate.
 

@@ -17,7 +17,7 @@ the procedure declares different in each replicate, at one alpha.
   one-alpha cores of :mod:`famwise.procedures.unequal` (critical values
   interpolated over the rows' Welch df); Welch t unadjusted and with Holm;
   Welch–Dunnett's multivariate t at each row's own Welch df, evaluated only
-  where the marginal and Bonferroni bounds leave the decision open; Yuen's
+  where the marginal and Šidák bounds leave the decision open; Yuen's
   (1974) trimmed-mean Welch test with Holm.
 * Resampling procedures: the warp-speed method of Giacomini, Politis & White
   (2013, *Econometric Theory* 29:567–589).  Each replicate contributes one
@@ -45,9 +45,19 @@ from ..procedures import adjust
 from ..procedures.catalogue import CATALOGUE
 
 __all__ = ["Stack", "pooled_t", "welch_t", "closed_form_rejects", "warp_statistics",
-           "warp_rejects", "single_step_name", "is_resampling"]
+           "warp_rejects", "single_step_name", "is_resampling", "SIMULATED"]
 
 _SQRT2 = np.sqrt(2.0)
+
+#: The procedures this module simulates: the closed forms of
+#: :func:`closed_form_rejects` and the resampling procedures of
+#: :func:`warp_statistics` (others, such as the rank, censored and wild-bootstrap
+#: procedures, have statistics of their own that are not simulated here).
+SIMULATED = frozenset((
+    "lsd", "bonferroni", "sidak", "holm", "bh", "tukey-kramer", "scheffe", "dunnett",
+    "multivariate-t", "games-howell", "dunnett-t3", "welch", "welch-holm", "welch-dunnett",
+    "yuen-holm", "permutation-maxt", "permutation-stepdown", "bootstrap-maxt",
+    "bootstrap-stepdown", "bootstrap-hall"))
 
 
 class Stack:
@@ -182,21 +192,28 @@ def closed_form_rejects(name: str, family: Family, stack: Stack, alpha: float,
 def _welch_dunnett_rejects(family, means, variances, n, alpha):
     """Welch–Dunnett's decisions, exact where they are not already settled.
 
-    A row's adjusted p lies between its marginal t p-value and m times that
-    (Bonferroni), so only the cells in between are evaluated with the
-    multivariate t at the replicate's Welch correlations and the cell's own
-    df (as :func:`famwise.procedures.unequal.welch_dunnett` does).
+    A cell's adjusted p lies between its marginal t p-value and Šidák's
+    1 - (1 - p)^m (Šidák 1967: the two-sided maximum of positively
+    correlated t's with a common scale), so only the cells in between are
+    evaluated, with the multivariate t at the replicate's own Welch
+    correlations and the cell's own df (as
+    :func:`famwise.procedures.unequal.welch_dunnett` does), each directly
+    (:func:`famwise.distributions.dunnett_rows.dunnett_rows_at_most`: no
+    table per replicate).
     """
+    from ..distributions.dunnett_rows import dunnett_rows_at_most
     t, df = welch_t(family.weights, means, variances, n)
     m = family.m
     p = 2 * stats.t.sf(np.abs(t), df)
-    out = m * p <= alpha
-    v = variances / n
-    ref, others = family.reference, family.pairs[:, 0]
-    for r in np.flatnonzero(np.any((p <= alpha) & ~out, axis=1)):
-        lam = np.sqrt(v[r, ref] / (v[r, ref] + v[r, others]))
-        for i in np.flatnonzero((p[r] <= alpha) & ~out[r]):
-            out[r, i] = float(dist.dunnett_sf(abs(t[r, i]), lam, float(df[r, i]))) <= alpha
+    out = -np.expm1(m * np.log1p(-p)) <= alpha
+    band = (p <= alpha) & ~out & np.isfinite(t) & np.isfinite(df) & (df >= 1)
+    if band.any():
+        v = variances / n
+        ref, others = family.reference, family.pairs[:, 0]
+        lam = np.sqrt(v[:, [ref]] / (v[:, [ref]] + v[:, others]))
+        rows, cols = np.nonzero(band)
+        out[rows, cols] = dunnett_rows_at_most(t[rows, cols], df[rows, cols],
+                                               np.minimum(lam[rows], 1.0 - 1e-15), alpha)
     return out
 
 

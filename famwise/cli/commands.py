@@ -29,6 +29,8 @@ examples:
   famwise inspect wide.csv --wide --columns "Rye,Fallow,Clover"
   famwise plan trial.csv -r nitrate_mg_kg -g mix --margin 5 --out plan/
   famwise plan --sd 4,4,6 --margin 5 --n 6,8,10,12
+  famwise plan trial.csv -r nitrate_mg_kg -g mix --transform log --margin 1.5 \\
+      --family vs-reference --reference "Bare fallow"
   famwise demo --out out/demo
 """
 
@@ -287,9 +289,22 @@ def build_parser() -> argparse.ArgumentParser:
     _add_file_options(p)
     p.add_argument("--exclude-rows", metavar="N,M,...", help="set aside these pilot rows")
     p.add_argument("--margin", type=float, required=True, metavar="D",
-                   help="smallest difference that matters, in the response's unit")
+                   help="smallest difference that matters, in the response's unit; with "
+                        "--transform log, a ratio of geometric means (1.5: 50%% higher, "
+                        "0.8: 20%% lower)")
     p.add_argument("--sd", metavar="S1,S2,...",
-                   help="group SDs (without a pilot: one per group; with one: replaces its SDs)")
+                   help="group SDs (without a pilot: one per group, named g1, g2, ...; with "
+                        "one: replaces its SDs); with --transform log, SDs of the natural log "
+                        "(about the CV when it is small)")
+    p.add_argument("--family", choices=("all-pairs", "vs-reference"), default="all-pairs",
+                   help="which comparisons (default: all-pairs)")
+    p.add_argument("--reference", metavar="LABEL",
+                   help="reference group for vs-reference (without a pilot: g1, g2, ...)")
+    p.add_argument("--transform", choices=("log",), default=None,
+                   help="plan the analysis on the log scale (as compare --transform log): "
+                        "the margin is then a ratio of geometric means")
+    p.add_argument("--log-offset", type=float, default=None, metavar="C",
+                   help="constant added to the pilot's values before the log (recorded)")
     p.add_argument("--n", metavar="N1,N2,...",
                    help="group sizes to evaluate (default: search the smallest that reaches "
                         "the target)")
@@ -527,7 +542,9 @@ def _run_plan(args) -> int:
                   procedures=args.procedure, replicates=args.replicates, seed=args.seed,
                   n_jobs=args.jobs, backend=args.backend, scheduler=args.scheduler,
                   alpha=args.alpha, shape=args.shape, goal=args.goal,
-                  allocation=args.allocation, max_n=args.max_n, policy=args.policy, **read)
+                  allocation=args.allocation, max_n=args.max_n, policy=args.policy,
+                  family=args.family, reference=args.reference, transform=args.transform,
+                  log_offset=args.log_offset, **read)
     if args.out:
         result.save(args.out, force=args.force)
     if args.quiet:

@@ -10,8 +10,9 @@ automatic pipeline (``"auto"``) is the power of what ``compare`` would do.
 For each candidate size and procedure, on ``replicates`` data sets drawn
 with the alternative's true means and the assumed SDs and error shape:
 
-* ``power_each``: the mean, over the true differences (pairs whose true
-  means differ), of the probability of declaring that pair different;
+* ``power_each``: the mean, over the true differences (the family's
+  comparisons whose true means differ), of the probability of declaring
+  that comparison different;
 * ``power_any``: the probability of declaring at least one true difference;
 * ``power_all``: the probability of declaring every true difference;
 * ``fwer``: the familywise error rate on data sets drawn at the complete
@@ -19,8 +20,16 @@ with the alternative's true means and the assumed SDs and error shape:
 * ``mc_se``: the largest binomial Monte Carlo standard error of the row's
   four estimates, sqrt(p (1 - p) / replicates).
 
+The family is all pairs, or each group against a reference
+(``family="vs-reference"``): every figure counts only the family's
+comparisons.  With ``transform="log"`` the plan runs on the natural log of
+the values, as ``compare(..., transform="log")`` does, and the margin is a
+ratio of geometric means (see :func:`plan`).
+
 Resampling procedures are simulated by the warp-speed method (Giacomini,
 Politis & White 2013); see :mod:`famwise.diagnostics.stacked_procedures`.
+The inputs are checked in :mod:`famwise.planning.inputs`, the placements
+and sizes built in :mod:`famwise.planning.scenario`.
 """
 
 from __future__ import annotations
@@ -34,10 +43,12 @@ import pandas as pd
 
 from ..core.errors import FamwiseInputError
 from ..core.validate import check_alpha
+from .inputs import (check_family, check_log_options, check_margin, check_n,
+                     check_procedures, check_sd, check_target)
+from .scenario import PLACEMENTS, blocked_pilot, first_size, group_sizes, true_means
 
 __all__ = ["plan", "Plan", "PLACEMENTS", "GOALS", "SCHEMA"]
 
-PLACEMENTS = ("one-pair", "one-vs-rest", "observed")
 GOALS = ("any", "each", "all")
 SCHEMA = "famwise.plan/1"
 COLUMNS = ("n_per_group", "procedure", "power_each", "power_any", "power_all", "fwer",
@@ -138,146 +149,7 @@ def _clean(x):
     return x
 
 
-# --- validation -------------------------------------------------------------------
-
-def _number(value, name, fix) -> float:
-    if isinstance(value, bool) or not isinstance(value, numbers.Real) or not math.isfinite(value):
-        raise FamwiseInputError(f"{name} must be a number; got {value!r} ({fix})")
-    return float(value)
-
-
-def _check_margin(margin) -> float:
-    value = _number(margin, "margin", "the smallest difference that matters, in the "
-                                      "response's unit")
-    if value <= 0:
-        raise FamwiseInputError(
-            f"margin must be positive (the smallest difference that matters, in the "
-            f"response's unit); got {margin!r}")
-    return value
-
-
-def _check_target(target) -> float:
-    value = _number(target, "target_power", "e.g. 0.8")
-    if not 0.0 < value < 1.0:
-        raise FamwiseInputError(
-            f"target_power must lie strictly between 0 and 1 (e.g. 0.8); got {target!r}")
-    return value
-
-
-def _check_n(n) -> list[int] | None:
-    if n is None:
-        return None
-    values = [n] if isinstance(n, numbers.Integral) and not isinstance(n, bool) else n
-    try:
-        values = list(values)
-    except TypeError:
-        raise FamwiseInputError(f"n must be a whole number or a list of them; got {n!r}") \
-            from None
-    if not values:
-        raise FamwiseInputError("n must list at least one group size; got an empty list")
-    out = []
-    for v in values:
-        if isinstance(v, bool) or not isinstance(v, numbers.Integral):
-            raise FamwiseInputError(f"n must hold whole numbers of observations per group; "
-                                    f"got {v!r}")
-        if v < 2:
-            raise FamwiseInputError(f"n must be at least 2 per group (a group needs two "
-                                    f"values for its spread); got {v}")
-        out.append(int(v))
-    return sorted(set(out))
-
-
-def _check_sd(sd) -> list[float]:
-    try:
-        values = [float(v) for v in sd]
-    except (TypeError, ValueError):
-        raise FamwiseInputError(f"sd must be a list of group SDs, e.g. [1, 1, 2]; got {sd!r}") \
-            from None
-    if len(values) < 2:
-        raise FamwiseInputError(f"sd must give one SD per group for at least 2 groups; "
-                                f"got {sd!r}")
-    for v in values:
-        if not math.isfinite(v) or v <= 0:
-            raise FamwiseInputError(f"every group SD must be a positive number; got {v!r} "
-                                    f"in sd={list(sd)!r}")
-    return values
-
-
-def _check_procedures(procedures) -> list[str] | None:
-    if procedures is None:
-        return None
-    from ..procedures.catalogue import CATALOGUE, check_procedure
-    if isinstance(procedures, str):
-        procedures = [procedures]
-    out = []
-    for p in procedures:
-        if p != "auto":
-            info = check_procedure(p)
-            if "all-pairs" not in info.families:
-                raise FamwiseInputError(
-                    f"procedure {p!r} does not compare all pairs, which plan simulates; "
-                    f"choose one of: {', '.join(n for n, i in CATALOGUE.items() if 'all-pairs' in i.families)}")
-        if p not in out:
-            out.append(p)
-    return out
-
-
-# --- the scenario -------------------------------------------------------------------
-
-def _means(placement, k, margin, pilot_means):
-    mu = np.zeros(k)
-    if placement == "one-pair":
-        mu[0], mu[1] = margin / 2, -margin / 2
-    elif placement == "one-vs-rest":
-        mu[0] = margin
-    else:
-        mu = np.asarray(pilot_means, dtype=float) - float(np.mean(pilot_means))
-    return mu
-
-
-def _sizes(n: int, weights) -> tuple:
-    """Group sizes for ``n`` per group: equal, or the pilot's proportions with
-    the smallest group at ``n``."""
-    return tuple(max(2, int(round(n * w))) for w in weights)
-
-
-def _blocked_pilot(layout) -> dict | None:
-    """SDs and error shape of a pilot with blocks or covariates, from the model.
-
-    The block and covariate effects are removed by the additive model
-    (:func:`famwise.model.fit_model`); each group's SD is the root mean
-    square of its residuals, rescaled so the groups pool to the model's
-    residual mean square, and the errors to resample are the residuals over
-    their group's SD.  The plan then simulates comparisons at that residual
-    spread as a one-way design (df N - k; a complete block design has
-    (n - 1)(k - 1), so the plan is slightly optimistic when n is small).
-    """
-    design = getattr(layout, "design", None)
-    if design is None or design.is_empty:
-        return None
-    from ..model.fit import fit_model
-    fit = fit_model(layout)
-    res = fit.residuals
-    n = np.bincount(layout.codes, minlength=layout.k).astype(float)
-    ss = np.bincount(layout.codes, weights=res * res, minlength=layout.k)
-    raw = ss / n
-    scale = fit.mse / (float(np.sum(n * raw)) / float(np.sum(n)))
-    var = raw * scale
-    if np.any(var <= 0):
-        raise FamwiseInputError("a group of the pilot has no residual spread after the "
-                                "blocks are removed; give sd=[...] instead")
-    sd = np.sqrt(var)
-    z = res / sd[layout.codes]
-    z = (z - z.mean()) / z.std()
-    terms = [t.name for t in fit.terms[1:]]
-    return {"sd": [float(v) for v in sd], "errors": z,
-            "model": {"terms": terms, "residual_df": int(fit.df), "mse": float(fit.mse)},
-            "note": (f"The pilot's {', '.join(terms)} effects were removed by the additive "
-                     f"model; the plan simulates the comparisons at the residual spread "
-                     f"(mean square {fit.mse:.4g} on {fit.df} df) as a one-way design, "
-                     f"which is slightly optimistic for a small blocked trial (a complete "
-                     f"block design has (n - 1)(k - 1) error df, not N - k).")}
-
+# --- the simulation at one size --------------------------------------------------
 
 def _summaries(rejects: np.ndarray, true: np.ndarray) -> tuple[float, float, float]:
     hit = rejects[:, true]
@@ -310,7 +182,7 @@ class _Evaluator:
             return {r["procedure"]: r for r in self.rows[n]}
         from ..diagnostics.simulate import Scenario, design_layout, route_table, simulate
         from ..resample.engine import chunk_seed
-        sizes = _sizes(n, self.weights)
+        sizes = group_sizes(n, self.weights)
         table = route_table(self.family, design_layout(sizes, self.sd), self.policy, self.alpha)
         common = dict(replicates=self.replicates, alpha=self.alpha, policy=self.policy,
                       table=table, n_jobs=self.n_jobs, backend=self.backend,
@@ -369,20 +241,68 @@ def _search(evaluate, procedures, goal, target, start, cap):
     return above, n
 
 
-def _start(margin, sd, alpha, k):
-    """A first size: the normal-theory n for a two-sided t at the Bonferroni level
-    over all pairs (common practice, no source), halved and at least 3."""
-    from scipy import stats
-    m = k * (k - 1) / 2
-    z = stats.norm.ppf(1 - alpha / (2 * m)) + stats.norm.ppf(0.8)
-    n = 2 * (z * float(np.max(sd)) / margin) ** 2
-    return int(max(3, min(64, math.floor(n / 2))))
+#: The procedures the route can choose, per family, in the order the table lists them.
+_CANDIDATES = {"all-pairs": ("tukey-kramer", "games-howell", "dunnett-t3", "permutation-maxt",
+                             "bootstrap-hall"),
+               "vs-reference": ("dunnett", "welch-dunnett", "permutation-maxt",
+                                "bootstrap-hall")}
+
+
+def _pilot(data, response, group, sd, scale, allocation, shape, read_options):
+    """What a pilot gives: labels, SDs, means, proportions, errors (on the plan's scale)."""
+    import os
+    from ..api import load_data
+    intake = load_data(data, response, group, **read_options)
+    layout = intake.layout
+    if layout.has_censoring:
+        raise FamwiseInputError(
+            f"the pilot data hold {int(layout.censored.sum())} non-detect(s); planning "
+            f"simulates procedures on means from the pilot's spreads, which non-detects "
+            f"do not give: pass nondetects='drop' (--nondetects drop) to plan from the "
+            f"measured values, and say so")
+    if scale.name is not None:
+        if layout.design is not None:
+            raise FamwiseInputError("transform='log' is not yet available with blocks or "
+                                    "covariates; take the log of the column first")
+        from ..model.scale import log_layout
+        layout = log_layout(layout, scale)       # refuses zero or negative rows, naming them
+    st = layout.stats
+    if np.any(st.n < 2):
+        small = layout.labels[int(np.argmin(st.n))]
+        raise FamwiseInputError(f"group {small!r} of the pilot has fewer than 2 values, so "
+                                f"its SD is unknown; give sd=[...] instead")
+    k, labels = layout.k, layout.labels
+    blocked = blocked_pilot(layout)
+    pilot_sd = blocked["sd"] if blocked else [float(v) for v in st.sd]
+    sds = check_sd(sd) if sd is not None else pilot_sd
+    if len(sds) != k:
+        raise FamwiseInputError(f"sd gives {len(sds)} SDs but the pilot has {k} groups "
+                                f"({', '.join(labels)})")
+    weights = st.n / st.n.min() if allocation == "pilot" else np.ones(k)
+    shape = shape or "observed"
+    if shape not in ("normal", "observed"):
+        raise FamwiseInputError(f"shape must be 'normal' or 'observed'; got {shape!r}")
+    from ..diagnostics.shape import standardised_residuals
+    if shape != "observed":
+        errors = None
+    elif blocked:
+        errors = blocked["errors"]
+    else:
+        errors = standardised_residuals(layout)
+    sha = None
+    if isinstance(data, (str, os.PathLike)):
+        from ..intake.reader import file_sha256
+        sha = file_sha256(data)
+    return dict(k=k, labels=tuple(labels), sds=sds, pilot_means=st.mean, weights=weights,
+                errors=errors, shape=shape, source=intake.ledger.source, sha=sha,
+                pilot_n=[int(v) for v in st.n], blocked=blocked)
 
 
 def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
          placement="one-pair", target_power=0.8, procedures=None, replicates=2000,
          seed=None, n_jobs=1, backend="threads", alpha=0.05, shape=None, goal="any",
          allocation="equal", max_n=500, scheduler=None, progress=None, policy=None,
+         family="all-pairs", reference=None, transform=None, log_offset=None,
          **read_options) -> Plan:
     """Estimate power and the group size that reaches a target, by simulation.
 
@@ -394,18 +314,31 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
     response, group : str, optional
         The pilot's value and group columns (long layout).
     sd : list of float, optional
-        Group SDs when no pilot is given (k = its length); with a pilot it
-        replaces the pilot's SDs.
+        Group SDs when no pilot is given (k = its length; the groups are
+        then g1, g2, ...); with a pilot it replaces the pilot's SDs.  With
+        ``transform="log"`` these are SDs of the natural log of the values
+        (for lognormal data with coefficient of variation c, the SD of the
+        log is sqrt(log(1 + c**2)); about c itself when c is small).
     n : int or list of int, optional
         Group sizes to evaluate; omitted: search the smallest size that
         reaches ``target_power`` for each procedure (up to ``max_n``).
     margin : float
-        The smallest difference that matters, in the response's unit.
+        The smallest difference that matters, in the response's unit (> 0).
+        With ``transform="log"``: the smallest ratio of geometric means that
+        matters, r > 0 and r != 1, simulated as the difference log r on the
+        log scale; r > 1 puts the shifted group(s) above (1.5: a 50% higher
+        geometric mean), r < 1 the same distance below (0.8: 20% lower, as
+        far from 1 on the log scale as 1.25).  The direction matters only
+        for skewed errors (``shape="observed"``).
     placement : {"one-pair", "one-vs-rest", "observed"}, default="one-pair"
-        "one-pair": the first two groups differ by the margin, the others sit
-        at their midpoint; "one-vs-rest": the first group is shifted by the
-        margin; "observed": the pilot's means (optimistic: a pilot's
-        differences are estimates, not facts).
+        All pairs: "one-pair": the first two groups differ by the margin, the
+        others sit at their midpoint; "one-vs-rest": the first group is
+        shifted by the margin from the rest.  Against a reference: "one-pair":
+        the first group other than the reference differs from it by the
+        margin, the others sit at the reference's mean; "one-vs-rest": every
+        other group differs from the reference by the margin.  "observed":
+        the pilot's means (optimistic: a pilot's differences are estimates,
+        not facts).
     target_power : float, default=0.8
     procedures : list of str, optional
         Procedure identifiers and ``"auto"`` (the pipeline); default: the
@@ -432,6 +365,24 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
         A progress bar on a terminal (None: only there, outside CI).
     policy : Policy, dict or path, optional
         Routing thresholds, as for :func:`famwise.compare`.
+    family : {"all-pairs", "vs-reference"}, default="all-pairs"
+        The comparisons, as for :func:`famwise.compare`: all pairs, or each
+        group against ``reference`` (two-sided).  ``power_each``,
+        ``power_any``, ``power_all`` and ``fwer`` count the family's
+        comparisons only.
+    reference : str or int, optional
+        The reference group for ``family="vs-reference"``: its label, or its
+        index (0 for the first group).
+    transform : {None, "log"}, default=None
+        ``"log"``: plan the analysis ``compare(..., transform="log")`` runs:
+        the pilot's SDs, means and residual shape are taken from the natural
+        log of its values (zero or negative values are refused, naming their
+        rows, unless ``log_offset`` lifts them), the data sets are simulated
+        on the log scale and checked, routed and tested there, and the
+        margin is a ratio.
+    log_offset : float, optional
+        A non-negative constant added to the pilot's values before the log
+        (recorded; as for :func:`famwise.compare`).
     **read_options
         Passed to :func:`famwise.intake.read`.
 
@@ -441,14 +392,14 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
         ``.table``, ``.recommended``, ``.summary()``, ``.to_dict()``,
         ``.to_json()``, ``.to_html(path)``, ``.save(folder)``.
     """
-    from ..api import _policy, _seed, load_data
-    from ..core.families import all_pairs
+    from ..api import _policy, _seed
+    from ..core.families import build_family
     from ..resample.engine import BACKENDS, Progress, want_progress
-    margin = _check_margin(margin)
-    target = _check_target(target_power)
+    scale = check_log_options(transform, log_offset, data is not None)
+    margin, shift = check_margin(margin, scale.name)
+    target = check_target(target_power)
     alpha = check_alpha(alpha)
-    sizes = _check_n(n)
-    procs = _check_procedures(procedures)
+    sizes = check_n(n)
     if placement not in PLACEMENTS:
         raise FamwiseInputError(f"placement must be one of {', '.join(PLACEMENTS)}; "
                                 f"got {placement!r}")
@@ -467,7 +418,6 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
         raise FamwiseInputError(f"max_n must be a whole number of at least 2; got {max_n!r}")
     seed = _seed(seed)
     pol = _policy(policy)
-    source, sha = None, None
     if data is None:
         if sd is None:
             raise FamwiseInputError("plan needs a pilot (data=FILE with response and group) "
@@ -477,74 +427,42 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
                                     "or choose 'one-pair' or 'one-vs-rest'")
         if allocation == "pilot":
             raise FamwiseInputError("allocation='pilot' needs a pilot (data=FILE)")
-        sds = _check_sd(sd)
+        sds = check_sd(sd)
         k = len(sds)
-        labels = tuple(f"g{i + 1}" for i in range(k))
-        pilot_means, weights, errors = None, np.ones(k), None
         shape = shape or "normal"
         if shape != "normal":
             raise FamwiseInputError("shape='observed' resamples a pilot's residuals; give "
                                     "data=FILE or use shape='normal'")
+        pilot = dict(k=k, labels=tuple(f"g{i + 1}" for i in range(k)), sds=sds,
+                     pilot_means=None, weights=np.ones(k), errors=None, shape=shape,
+                     source=None, sha=None, pilot_n=None, blocked=None)
     else:
-        import os
-        intake = load_data(data, response, group, **read_options)
-        layout = intake.layout
-        if layout.has_censoring:
-            raise FamwiseInputError(
-                f"the pilot data hold {int(layout.censored.sum())} non-detect(s); planning "
-                f"simulates procedures on means from the pilot's spreads, which non-detects "
-                f"do not give: pass nondetects='drop' (--nondetects drop) to plan from the "
-                f"measured values, and say so")
-        st = layout.stats
-        if np.any(st.n < 2):
-            small = layout.labels[int(np.argmin(st.n))]
-            raise FamwiseInputError(f"group {small!r} of the pilot has fewer than 2 values, so "
-                                    f"its SD is unknown; give sd=[...] instead")
-        k, labels = layout.k, layout.labels
-        blocked = _blocked_pilot(layout)
-        pilot_sd = blocked["sd"] if blocked else [float(v) for v in st.sd]
-        sds = _check_sd(sd) if sd is not None else pilot_sd
-        if len(sds) != k:
-            raise FamwiseInputError(f"sd gives {len(sds)} SDs but the pilot has {k} groups "
-                                    f"({', '.join(labels)})")
-        pilot_means = st.mean
-        weights = st.n / st.n.min() if allocation == "pilot" else np.ones(k)
-        shape = shape or "observed"
-        if shape not in ("normal", "observed"):
-            raise FamwiseInputError(f"shape must be 'normal' or 'observed'; got {shape!r}")
-        from ..diagnostics.shape import standardised_residuals
-        if shape != "observed":
-            errors = None
-        elif blocked:
-            errors = blocked["errors"]
-        else:
-            errors = standardised_residuals(layout)
-        source = intake.ledger.source
-        if isinstance(data, (str, os.PathLike)):
-            from ..intake.reader import file_sha256
-            sha = file_sha256(data)
+        pilot = _pilot(data, response, group, sd, scale, allocation, shape, read_options)
+    k, labels, sds = pilot["k"], pilot["labels"], pilot["sds"]
     if k < 2:
         raise FamwiseInputError(f"plan needs at least 2 groups; got {k}")
-    if placement == "one-pair" and k < 2 or placement == "one-vs-rest" and k < 2:
-        raise FamwiseInputError("placement needs at least 2 groups")
-    family = all_pairs(labels)
-    mu = _means(placement, k, margin, pilot_means)
+    kind, ref_label = check_family(family, reference, labels)
+    procs = check_procedures(procedures, kind)
+    fam = build_family(labels, kind, ref_label)
+    mu = true_means(placement, k, shift, pilot["pilot_means"], fam.reference)
+    weights, blocked = pilot["weights"], pilot["blocked"]
+    start = first_size(shift, sds, alpha, fam.m)
     if procs is None:
         from ..diagnostics.simulate import design_layout, route_table
-        start_n = sizes[0] if sizes else _start(margin, sds, alpha, k)
-        table = route_table(family, design_layout(_sizes(start_n, weights), sds), pol, alpha)
-        candidates = ["tukey-kramer", "games-howell", "dunnett-t3", "permutation-maxt",
-                      "bootstrap-hall"]
-        chosen = set(table.values())
-        procs = [p for p in candidates if p in chosen] + ["auto"]
+        start_n = sizes[0] if sizes else start
+        table = route_table(fam, design_layout(group_sizes(start_n, weights), sds), pol, alpha)
+        chosen = list(dict.fromkeys(table.values()))
+        order = _CANDIDATES[kind]
+        procs = [p for p in order if p in chosen] + [p for p in chosen if p not in order] \
+            + ["auto"]
     root = np.random.SeedSequence(seed)
     n_eval = len(sizes) if sizes else 12
     estimate = 2.5e-7 * replicates * k * (sizes[-1] if sizes else 20) * len(procs) * n_eval
     bar = Progress(2 * replicates * len(sizes) if sizes else None,
                    want_progress(progress, estimate), unit="data set", desc="planning")
-    evaluate = _Evaluator(k=k, sd=np.asarray(sds), mu=mu, errors=errors, weights=weights,
-                          family=family, procedures=procs, alpha=alpha, policy=pol,
-                          replicates=int(replicates), root=root, n_jobs=n_jobs,
+    evaluate = _Evaluator(k=k, sd=np.asarray(sds), mu=mu, errors=pilot["errors"],
+                          weights=weights, family=fam, procedures=procs, alpha=alpha,
+                          policy=pol, replicates=int(replicates), root=root, n_jobs=n_jobs,
                           backend=backend, scheduler=scheduler, bar=bar)
     notes = []
     try:
@@ -556,8 +474,7 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
                            for p in procs}
         else:
             recommended, last = _search(evaluate, procs, goal, target,
-                                        min(int(max_n), _start(margin, sds, alpha, k)),
-                                        int(max_n))
+                                        min(int(max_n), start), int(max_n))
             if all(v is None for v in recommended.values()):
                 best = max(evaluate(last).values(), key=lambda r: r[f"power_{goal}"])
                 raise FamwiseInputError(
@@ -573,22 +490,41 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
     finally:
         bar.close()
     rows = [row for s in sorted(evaluate.rows) for row in evaluate.rows[s]]
+    scale_name = "ratio" if scale.name == "log" else "difference"
     table = pd.DataFrame(rows, columns=list(COLUMNS))
-    true_pairs = [name for name, t in zip(family.names, evaluate.true) if t]
+    table.attrs.update(margin=margin, margin_scale=scale_name, transform=scale.name,
+                       family=kind, reference=ref_label)
+    true_pairs = [name for name, t in zip(fam.names, evaluate.true) if t]
     settings = {
-        "source": source, "sha256": sha, "response": response, "group": group,
-        "labels": list(labels), "k": k, "sd": [float(v) for v in sds],
-        "true_means": [float(v) for v in mu], "margin": margin, "placement": placement,
-        "true_differences": true_pairs, "shape": shape, "alpha": alpha,
+        "source": pilot["source"], "sha256": pilot["sha"], "response": response,
+        "group": group, "labels": list(labels), "k": k, "sd": [float(v) for v in sds],
+        "true_means": [float(v) for v in mu], "margin": margin, "margin_scale": scale_name,
+        "transform": scale.name, "log_offset": scale.offset if scale.name else None,
+        "log_margin": shift if scale.name else None, "placement": placement,
+        "true_differences": true_pairs, "shape": pilot["shape"], "alpha": alpha,
         "target_power": target, "goal": goal, "allocation": allocation,
         "replicates": int(replicates), "seed": seed, "procedures": procs,
-        "candidates": sizes, "max_n": int(max_n),
-        "pilot_n": None if data is None else [int(v) for v in layout.stats.n],
-        "family": "all-pairs", "m": family.m, "policy": pol.to_dict(),
-        "pilot_model": None if data is None or not blocked else blocked["model"],
+        "candidates": sizes, "max_n": int(max_n), "pilot_n": pilot["pilot_n"],
+        "family": kind, "reference": ref_label, "comparisons": list(fam.names),
+        "m": fam.m, "policy": pol.to_dict(),
+        "pilot_model": blocked["model"] if blocked else None,
     }
-    if data is not None and blocked:
+    if blocked:
         notes.append(blocked["note"])
+    if scale.name:
+        notes.append(_log_note(scale, margin, shift, data is not None))
     return Plan(table, recommended, settings, dict(evaluate.routes),
                 {s: list(v) for s, v in evaluate.sizes.items()}, dict(evaluate.methods),
                 tuple(notes))
+
+
+def _log_note(scale, margin, shift, pilot: bool) -> str:
+    where = ("the pilot's SDs, means and residual shape are those of "
+             f"log(x{f' + {scale.offset:g}' if scale.offset else ''})" if pilot else
+             "the SDs given are SDs of the natural log of the values")
+    way = "higher" if margin > 1 else "lower"
+    pct = abs(margin - 1) * 100
+    return (f"On the log scale: {where}; the margin, a ratio of {margin:g} ({pct:.3g}% {way} "
+            f"geometric mean), is a difference of {shift:.4g} in the natural log; every data "
+            f"set is checked, routed and tested on the logs, as compare(..., "
+            f"transform='log') does.")

@@ -19,7 +19,8 @@ import numpy as np
 
 from . import figures
 from .html import CSP, _STYLE, _e, _facts, _figure, _list, _num, _table
-from .plan_text import PLAN_CAUTIONS, liberal_procedures, plan_statements
+from .plan_text import (PLAN_CAUTIONS, family_words, liberal_procedures, margin_words,
+                        plan_statements)
 
 __all__ = ["plan_html", "PLAN_SECTIONS", "plan_command"]
 
@@ -43,10 +44,17 @@ def plan_command(result) -> str:
     """The command line that repeats this plan."""
     s = result.settings
     parts = ["famwise", "plan"]
-    if s["source"] is not None and s["sha256"] is not None:
+    from_file = s["source"] is not None and s["sha256"] is not None
+    if from_file:
         parts += [s["source"], "-r", str(s["response"]), "-g", str(s["group"])]
     else:
         parts += ["--sd", ",".join(f"{v:g}" for v in s["sd"])]
+    if s.get("family") == "vs-reference":
+        parts += ["--family", "vs-reference", "--reference", str(s["reference"])]
+    if s.get("transform") == "log":
+        parts += ["--transform", "log"]
+        if s.get("log_offset") and from_file:
+            parts += ["--log-offset", f"{s['log_offset']:g}"]
     parts += ["--margin", f"{s['margin']:g}", "--placement", s["placement"],
               "--target-power", f"{s['target_power']:g}", "--goal", s["goal"],
               "--alpha", f"{s['alpha']:g}", "--shape", s["shape"]]
@@ -77,7 +85,8 @@ def _curves(result) -> str:
                 float(sub.get(v, np.nan)) for v in n]
         svg = figures.power_curve_svg(n, series, s["target_power"], what=what,
                                       highlight="automatic pipeline")
-        out.append(_figure(svg, f"Estimated {what} against observations per group, one line "
+        out.append(_figure(svg, f"Estimated {what} against observations per group "
+                                f"({margin_words(s)}), one line "
                                 f"per procedure; the dashed line is the target "
                                 f"{s['target_power']:g}. Each point is a Monte Carlo "
                                 f"estimate from {s['replicates']} data sets (largest SE "
@@ -114,9 +123,18 @@ def plan_html(result) -> str:
     s = result.settings
     title = "famwise power report" + (f": {s['response']} by {s['group']}"
                                       if s["response"] else "")
-    facts = [("groups", ", ".join(s["labels"])), ("SDs", ", ".join(_num(v) for v in s["sd"])),
-             ("true means", ", ".join(_num(v) for v in s["true_means"])),
-             ("margin", _num(s["margin"])), ("placement", s["placement"]),
+    log = s.get("transform") == "log"
+    facts = [("groups", ", ".join(s["labels"])),
+             ("comparisons", family_words(s)),
+             ("scale", ("natural log of the values"
+                        + (f" + {s['log_offset']:g}" if s.get("log_offset") else "")
+                        + "; differences are ratios of geometric means") if log
+              else "the response's unit; differences of means"),
+             ("SDs of the natural log" if log else "SDs", ", ".join(_num(v) for v in s["sd"])),
+             ("true means (log scale)" if log else "true means",
+              ", ".join(_num(v) for v in s["true_means"])),
+             ("margin", margin_words(s).removeprefix("margin: ").removeprefix("margin ")),
+             ("placement", s["placement"]),
              ("true differences", ", ".join(s["true_differences"])),
              ("error shape", s["shape"]), ("familywise alpha", f"{s['alpha']:g}"),
              ("target power", f"{s['target_power']:g} ({s['goal']})"),
@@ -133,6 +151,7 @@ def plan_html(result) -> str:
           float(r.power_each), float(r.power_any), float(r.power_all), float(r.fwer),
           float(r.mc_se)) for r in t.itertuples()], numeric=(0, 2, 3, 4, 5, 6))
         + "<p class=\"small\">" + _e(
+            f"The plan's {margin_words(s)}. "
             "power (each): the mean per-comparison power over the true differences; (any): "
             "at least one found; (all): every one found. Familywise error: on data sets at "
             "the complete null with the same sizes and spreads.") + "</p>"
@@ -147,7 +166,8 @@ def plan_html(result) -> str:
     nav = ('<nav aria-label="Sections"><ol>'
            + "".join(f'<li><a href="#{sid}">{_e(h)}</a></li>' for sid, h in PLAN_SECTIONS)
            + "</ol></nav>")
-    header = (f"<header><h1>{_e(title)}</h1><p>{s['k']} groups · margin {_num(s['margin'])} · "
+    shown = (f"ratio {_num(s['margin'])} (log scale)" if log else _num(s["margin"]))
+    header = (f"<header><h1>{_e(title)}</h1><p>{s['k']} groups · margin {_e(shown)} · "
               f"familywise alpha {s['alpha']:g} · target power {s['target_power']:g}</p>"
               "</header>")
     return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"

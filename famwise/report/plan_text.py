@@ -6,7 +6,8 @@ import textwrap
 
 from .textformat import format_number
 
-__all__ = ["plan_text", "plan_statements", "liberal_procedures", "PLAN_CAUTIONS"]
+__all__ = ["plan_text", "plan_statements", "liberal_procedures", "placement_sentence",
+           "margin_words", "PLAN_CAUTIONS"]
 
 PLAN_CAUTIONS = (
     "Power is estimated at the assumed spreads and error shape; if the next trial's "
@@ -56,19 +57,64 @@ def liberal_procedures(result) -> dict:
     return out
 
 
+def margin_words(s: dict) -> str:
+    """The margin with its scale: "margin 5" or "margin: a ratio of 1.5 of geometric
+    means (log-scale difference 0.4055)"."""
+    if s.get("transform") == "log":
+        return (f"margin: a ratio of {s['margin']:g} of geometric means (log-scale "
+                f"difference {s['log_margin']:.4g})")
+    return f"margin {_fmt(s['margin'])}"
+
+
+def placement_sentence(s: dict) -> str:
+    """Where the margin sits, in words (all pairs or against the reference)."""
+    labels, ref = s["labels"], s.get("reference")
+    place = s["placement"]
+    if place == "observed":
+        return (f"the pilot's observed {'log-scale ' if s.get('transform') else ''}means "
+                f"(optimistic: a pilot's differences are estimates, and the largest of them "
+                f"is usually an overestimate)")
+    others = [g for g in labels if g != ref]
+    if s.get("transform") == "log":
+        r = f"{s['margin']:g} times"
+        if ref is None and place == "one-pair":
+            return (f"the geometric mean of {labels[0]} is {r} that of {labels[1]} and the "
+                    f"others sit at their geometric midpoint")
+        if ref is None:
+            return f"the geometric mean of {labels[0]} is {r} that of the rest"
+        if place == "one-pair":
+            return (f"the geometric mean of {others[0]} is {r} that of the reference {ref} "
+                    f"and the other groups sit at the reference's")
+        return f"every group's geometric mean is {r} that of the reference {ref}"
+    if ref is None and place == "one-pair":
+        return (f"the first two groups ({labels[0]}, {labels[1]}) differ by the margin and "
+                f"the others sit at their midpoint")
+    if ref is None:
+        return f"group {labels[0]} is shifted by the margin from the rest"
+    if place == "one-pair":
+        return (f"group {others[0]} differs from the reference {ref} by the margin and the "
+                f"other groups sit at the reference's mean")
+    return f"every group differs from the reference {ref} by the margin"
+
+
+def family_words(s: dict) -> str:
+    if s.get("family") == "vs-reference":
+        return (f"each group against the reference {s['reference']} ({s['m']} "
+                f"comparison{'s' if s['m'] != 1 else ''}, two-sided)")
+    return f"all pairs ({s['m']} comparison{'s' if s['m'] != 1 else ''})"
+
+
 def plan_statements(result) -> list[str]:
     """The plan's plain statements: what was assumed and what it found."""
     s = result.settings
     goal = s["goal"]
     what = {"any": "at least one true difference", "each": "each true difference (on average)",
             "all": "every true difference"}[goal]
-    place = {"one-pair": f"the first two groups ({s['labels'][0]}, {s['labels'][1]}) differ "
-                         f"by the margin and the others sit at their midpoint",
-             "one-vs-rest": f"group {s['labels'][0]} is shifted by the margin from the rest",
-             "observed": "the pilot's observed means (optimistic: a pilot's differences are "
-                         "estimates, and the largest of them is usually an overestimate)"}
-    out = [f"Assumed: {s['k']} groups with SDs {', '.join(_fmt(v) for v in s['sd'])}; "
-           f"{place[s['placement']]}; margin {_fmt(s['margin'])}; "
+    log = s.get("transform") == "log"
+    sds = ("SDs of the natural log " if log else "SDs ") + ", ".join(_fmt(v) for v in s["sd"])
+    out = [f"Assumed{' (on the log scale: ratios of geometric means)' if log else ''}: "
+           f"{s['k']} groups with {sds}; comparisons: {family_words(s)}; "
+           f"{placement_sentence(s)}; {margin_words(s)}; "
            f"{'normal errors' if s['shape'] == 'normal' else 'errors resampled from the pilot'}"
            f"; familywise alpha {s['alpha']:g}; {s['replicates']} simulated data sets per size "
            f"(seed {s['seed']})."]
@@ -106,6 +152,11 @@ def plan_text(result) -> str:
     from .textformat import frame_text
     paras = [textwrap.fill(t, width=100) for t in plan_statements(result)]
     table = frame_text(result.table)
+    s = result.settings
+    caption = (f"Power at a ratio of {s['margin']:g} of geometric means (on the log scale):"
+               if s.get("transform") == "log" else
+               f"Power at a difference of {_fmt(s['margin'])} (the margin):")
+    table = caption + "\n\n" + table
     cautions = "\n".join(textwrap.fill(c, width=100, initial_indent="* ",
                                        subsequent_indent="  ") for c in PLAN_CAUTIONS)
     return "\n\n".join([paras[0], table] + paras[1:] + [cautions])
