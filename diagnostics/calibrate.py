@@ -62,7 +62,8 @@ class Calibration:
 
     ``table`` has one row per procedure: ``procedure``, ``fwer``, ``se``
     (binomial Monte Carlo SE), ``replicates``, ``method`` and ``holds``
-    (``fwer <= alpha + 2 se``); the last row, ``automatic pipeline``, is the
+    (``fwer <= alpha + 2 se``; None for a procedure the simulation does not
+    cover, whose ``method`` says "not simulated"); the last row, ``automatic pipeline``, is the
     whole route-then-test procedure.
     """
 
@@ -153,7 +154,8 @@ def calibrate_layout(layout: Layout, family: Family, *, alpha: float = 0.05,
         from .model_calibrate import calibrate_model
         rows, routes, design = calibrate_model(
             layout, family, alpha=alpha, replicates=replicates, shape=shape, seed=seed,
-            procedures=procedures, pipeline=pipeline, policy=policy, row=_row)
+            procedures=procedures, pipeline=pipeline, policy=policy, row=_row,
+            n_jobs=n_jobs, backend=backend)
         return Calibration(alpha, family.m, shape, replicates, int(seed), design,
                            pd.DataFrame(rows), routes)
     from .simulate import route_table, simulate

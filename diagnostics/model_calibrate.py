@@ -18,10 +18,11 @@ the procedure run on the observed data: Tukey–Kramer, Dunnett, Bonferroni,
 (``multivariate-t``).  Under the complete null Holm errs exactly when
 Bonferroni does; LSD errs when its F gate opens and some ``|t_j|`` exceeds
 the unadjusted critical value; Benjamini–Hochberg's FDR equals its FWER and
-is evaluated from each replicate's sorted p-values.  Resampling procedures
-are not estimated here (the table says so).  The pipeline re-runs the
-checks and the route on every replicate and counts the error of the
-procedure it chose.
+is evaluated from each replicate's sorted p-values.  The resampling
+procedures (within-block permutation, wild bootstrap) are estimated by the
+warp-speed method, and the pipeline's checks and route run on stacked
+replicates (:mod:`famwise.diagnostics.model_simulate`); a procedure that
+does not read the model is listed as not simulated.
 """
 
 from __future__ import annotations
@@ -33,12 +34,10 @@ from ..core.errors import FamwiseInputError
 from ..core.families import Family
 from ..core.layout import Layout
 from ..model import fit_model
-from ..procedures.catalogue import CATALOGUE, run_procedure
+from ..procedures.catalogue import CATALOGUE
 from .policy import Policy
 
 __all__ = ["calibrate_model"]
-
-_DUAL = ("tukey-kramer", "dunnett", "bonferroni", "sidak", "scheffe", "multivariate-t")
 
 
 def _replicates(layout: Layout, shape: str, replicates: int, rng) -> np.ndarray:
@@ -84,89 +83,62 @@ def _statistics(layout: Layout, family: Family, Y: np.ndarray):
     return t, p_t, p_f, fit
 
 
-def _hits(name, family, layout, t, p_t, p_f, fit, alpha, observed_tables):
-    if name in ("holm", "welch-holm"):
-        name = "bonferroni"
-    if name == "lsd":
-        crit = stats.t.isf(alpha / 2.0, fit.df)
-        return (p_f <= alpha) & (np.abs(t).max(axis=1) > crit), "closed form per replicate"
-    if name == "bh":
-        m = family.m
-        srt = np.sort(p_t, axis=1)
-        return np.any(srt <= alpha * np.arange(1, m + 1) / m, axis=1), \
-            "closed form per replicate; under the complete null the FDR equals the FWER"
-    table = observed_tables.get(name)
-    if table is None:
-        table = run_procedure(name, layout, family, alpha=alpha)
-        observed_tables[name] = table
-    crit = ((table["ci_upper"] - table["difference"]) / table["std_error"]).to_numpy()
-    return np.any(np.abs(t) > crit[None, :], axis=1), \
-        "critical values of the observed design, t statistics per replicate"
-
-
 def calibrate_model(layout: Layout, family: Family, *, alpha: float = 0.05,
                     replicates: int = 2000, shape: str = "normal", seed: int = 0,
                     procedures=None, pipeline: bool = True,
-                    policy: Policy | None = None, row=None):
+                    policy: Policy | None = None, row=None, n_jobs=1,
+                    backend: str = "threads"):
     """Estimate the FWER of the model's candidates, and the pipeline's.
 
     Returns ``(rows, routes, design)``; :func:`calibrate.calibrate_layout`
-    wraps them in a Calibration (``row`` is its row maker).
+    wraps them in a Calibration (``row`` is its row maker).  A procedure the
+    model simulation does not cover gets a row with ``holds`` None and the
+    method "not simulated ..." (never a verdict).
     """
-    from . import run_checks
-    from .route import choose
+    from .model_checks import group_residual_sd, model_scaled_residuals
+    from .model_simulate import ModelScenario, model_simulated, simulate_model
     _row = row
     policy = policy or Policy()
     if replicates < 100:
         raise FamwiseInputError(f"replicates must be at least 100; got {replicates}")
-    rng = np.random.default_rng(seed)
-    Y = _replicates(layout, shape, replicates, rng)
-    t, p_t, p_f, fit = _statistics(layout, family, Y)
+    if shape not in ("normal", "observed"):
+        raise FamwiseInputError(f"shape must be 'normal' or 'observed'; got {shape!r}")
+    fit = fit_model(layout)
     if procedures is None:
         names = [n for n, info in CATALOGUE.items() if "model" in info.designs and (
             family.kind in info.families or (family.kind == "contrasts" and family.is_pairwise
                                              and "all-pairs" in info.families))]
     else:
         names = list(procedures)
-    rows, reject, tables = [], {}, {}
+    simulated = [n for n in names if model_simulated(n)]
+    sd = group_residual_sd(fit)
+    errors = model_scaled_residuals(fit) if shape == "observed" else None
+    scenario = ModelScenario(layout, (0.0,) * layout.k, tuple(float(v) for v in sd), errors)
+    sim = simulate_model(scenario, family, simulated + (["auto"] if pipeline else []),
+                         replicates=replicates, seed=np.random.SeedSequence(seed),
+                         alpha=alpha, policy=policy, n_jobs=n_jobs, backend=backend)
+    rows = []
     for name in names:
-        info = CATALOGUE[name]
-        if info.route == "resample" or (name not in _DUAL and name not in
-                                        ("holm", "lsd", "bh")):
+        if name not in simulated:
             rows.append({"procedure": name, "fwer": float("nan"), "se": float("nan"),
-                         "replicates": 0, "method": "not estimated for blocked or "
-                                                   "covariate designs", "holds": False})
+                         "replicates": 0, "holds": None,
+                         "method": "not simulated: the procedure does not read the "
+                                   "blocked or covariate model"})
             continue
-        hits, method = _hits(name, family, layout, t, p_t, p_f, fit, alpha, tables)
-        if name == "holm":
-            method += "; under the complete null it errs exactly when Bonferroni does"
-        reject[name] = hits
-        rows.append(_row(name, hits, replicates, method, alpha))
+        method = sim.methods[name]
+        if name == "holm" or name.endswith("stepdown"):
+            method += ("; under the complete null it errs exactly when its single-step "
+                       "counterpart does")
+        if name == "bh":
+            method += "; under the complete null the FDR equals the FWER"
+        rows.append(_row(name, sim.rejects[name].any(axis=1), replicates, method, alpha))
     routes = {}
     if pipeline:
-        quiet = policy.replace(calibrate_candidates=False)
-        chosen, hits = [], []
-        for r in range(replicates):
-            lay = Layout(values=Y[r], codes=layout.codes, labels=layout.labels,
-                         design=layout.design)
-            proc = choose(run_checks(lay, quiet), family, lay, quiet, "auto", alpha).procedure
-            chosen.append(proc)
-            if proc not in reject:
-                dual = proc in _DUAL or proc in ("holm", "lsd", "bh")
-                # a resampling route is not estimated here (module notes)
-                reject[proc] = (_hits(proc, family, layout, t, p_t, p_f, fit, alpha,
-                                      tables)[0]
-                                if dual and CATALOGUE[proc].route != "resample" else None)
-            if reject[proc] is not None:
-                hits.append(bool(reject[proc][r]))
-        routes = {str(p): int(c) for p, c in zip(*np.unique(chosen, return_counts=True))}
-        if hits:
-            rows.append(_row("automatic pipeline", np.array(hits), len(hits),
-                             "checks and routing re-run on every replicate"
-                             + ("" if len(hits) == replicates else
-                                f"; {replicates - len(hits)} replicates routed to a "
-                                f"resampling procedure not estimated"), alpha))
-    design = {"labels": list(layout.labels), "n": fit.n.tolist(),
+        rows.append(_row("automatic pipeline", sim.rejects["auto"].any(axis=1), replicates,
+                         "checks and routing re-run on every replicate (the model's "
+                         "checks on stacked replicates)", alpha))
+        routes = sim.route_counts()
+    design = {"labels": list(layout.labels), "n": fit.n.tolist(), "sd": sd.tolist(),
               "blocks": list(layout.design.block_names),
               "covariates": list(layout.design.covariate_names),
               "df_residual": fit.df, "family": family.kind}

@@ -463,7 +463,10 @@ def _run_calibrate(args) -> int:
         from ..report.output import safe_csv_text
         sys.stdout.write(safe_csv_text(result.table))
     else:
-        print(frame_text(result.table[["procedure", "fwer", "se", "replicates", "holds"]]))
+        shown = result.table[["procedure", "fwer", "se", "replicates", "holds"]].copy()
+        shown["holds"] = ["not simulated" if h is None or h != h else ("yes" if h else "no")
+                          for h in shown["holds"]]
+        print(frame_text(shown))
         print()
         import textwrap
         print(textwrap.fill(result.sentence(), width=100))

@@ -639,7 +639,8 @@ def _calibration(cal, procedure: str) -> str:
             rows.append((r["procedure"] + ("  (used here)" if r["procedure"] == procedure
                                            else ""),
                          r["fwer"], r["se"], r.get("replicates"),
-                         _tag("within alpha + 2 SE", "ok") if holds else
+                         _tag("not simulated", "concern") if holds is None or holds != holds
+                         else _tag("within alpha + 2 SE", "ok") if holds else
                          _tag("above alpha + 2 SE", "violated"), r.get("method", "")))
         out.append(_table(["procedure", "estimated error rate", "Monte Carlo SE",
                            "replicates", f"against alpha = {alpha:g}" if alpha else "verdict",
