@@ -16,7 +16,11 @@ the observed standardised within-group residuals (``shape="observed"``).
 Methods.  Everything runs on stacked replicates
 (:mod:`famwise.diagnostics.simulate`): the checks, the route and the
 procedures are evaluated on all replicates at once.  Closed-form procedures
-are evaluated from each replicate's group means and variances.  Resampling procedures use the
+are evaluated from each replicate's group means and variances; the asymptotic
+rank procedures from each replicate's ranks, the permutation ones and the
+censored-data max-T by the warp-speed method below
+(:mod:`famwise.diagnostics.stacked_ranks`, :mod:`~famwise.diagnostics.stacked_censored`).
+Resampling procedures use the
 warp-speed method of Giacomini, Politis & White (2013, *Econometric Theory*
 29:567–589): one resample per replicate, and the replicate rejects when its
 max statistic exceeds the (1 - alpha) quantile of the pooled resampled max
@@ -104,8 +108,6 @@ class Calibration:
 def _candidates(family: Family) -> list[str]:
     out = []
     for name, info in CATALOGUE.items():
-        if info.route == "ranks":
-            continue        # not on the stacked-replicate engine yet (issue 15)
         ok = family.kind in info.families or (
             family.kind == "contrasts" and family.is_pairwise and "all-pairs" in info.families)
         if ok:
@@ -169,11 +171,6 @@ def calibrate_layout(layout: Layout, family: Family, *, alpha: float = 0.05,
             f"options ({', '.join(options)}) belong to the procedures you name: pass "
             f"procedures=[...] (--procedure NAME)")
     names = list(procedures) if procedures is not None else _candidates(family)
-    ranks = [n for n in names if n in CATALOGUE and CATALOGUE[n].route == "ranks"]
-    if ranks:
-        raise FamwiseInputError(
-            f"calibration does not simulate rank procedures yet ({', '.join(ranks)}); "
-            f"leave them out of procedures")
     if options.get("statistic", "welch") not in WARP_STATISTICS or (
             "trim" in options and any(CATALOGUE[p].route == "resample" for p in names)):
         shown = ", ".join(f"{k}={v}" for k, v in options.items())
@@ -201,7 +198,8 @@ def calibrate_layout(layout: Layout, family: Family, *, alpha: float = 0.05,
     for name in names:
         hits = sim.rejects[name].any(axis=1)
         method = sim.methods[name] + (f"; options {given}" if given else "")
-        if name == "holm" or name.endswith("stepdown") or name in ("welch-holm", "yuen-holm"):
+        if name == "holm" or name.endswith("stepdown") or name in ("welch-holm", "yuen-holm",
+                                                                   "dunn-holm"):
             method += "; under the complete null it errs exactly when its single-step " \
                       "counterpart does"
         if name == "bh":

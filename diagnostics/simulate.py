@@ -10,15 +10,22 @@ declare different?  This module answers it on stacked replicates:
    array, in chunks of fixed size;
 2. run every check on all rows at once (:mod:`famwise.diagnostics.stacked`);
 3. route each row: with the sizes, the family and the policy fixed, the
-   route's choice depends on a replicate only through two facts, "shape
-   poor" and "spread unequal", so :func:`route_table` asks
-   :func:`famwise.diagnostics.route.choose` once for each of the four
+   route's choice depends on a replicate only through a few facts: "shape
+   poor" and "spread unequal" for the rules, and before them whether the
+   row holds non-detects (and whether their limits differ) or a gross value
+   that stands apart (and whether its group can be trimmed)
+   (:mod:`famwise.diagnostics.stacked_route`); :func:`route_table` asks
+   :func:`famwise.diagnostics.route.choose` once for each of the four rule
    combinations (the quick Games–Howell calibration and the power step,
    when the policy asks for them, are evaluated there, once, at the
-   design's own SDs and residuals) and each row looks its procedure up;
+   design's own SDs and residuals) and the censored and robust routes once
+   per key, and each row looks its procedure up;
 4. run the procedures on all rows at once
    (:mod:`famwise.diagnostics.stacked_procedures`; resampling procedures by
-   the warp-speed method), and give the pipeline each row's routed decisions.
+   the warp-speed method; rank and censored-score procedures through
+   :mod:`famwise.diagnostics.stacked_scores`), and give the pipeline each
+   row's routed decisions.  A procedure that only the censored or robust
+   route needs is computed in a chunk only when one of its rows takes it.
 
 Chunk ``i`` draws from the ``i``-th child of the root ``SeedSequence`` (as
 the resampling engine does), so results are identical for any ``n_jobs``
@@ -68,7 +75,11 @@ class Scenario:
 
 
 def draw(design: Scenario, replicates: int, rng) -> Stack:
-    """Draw ``replicates`` data sets of ``design`` as a :class:`Stack`."""
+    """Draw ``replicates`` data sets of ``design`` as a :class:`Stack` (a design
+    with its own ``draw``, such as the censored-data scenario of
+    :mod:`famwise.diagnostics.stacked_censored`, draws itself)."""
+    if hasattr(design, "draw"):
+        return design.draw(replicates, rng)
     blocks = design.blocks
     size = (int(replicates), blocks.total)
     if design.errors is None:
@@ -115,10 +126,14 @@ def route_table(family: Family, layout: Layout, policy: Policy | None = None,
     replicates.
     """
     from .route import choose
+    from .stacked_route import robust_entries
     policy = policy or Policy()
-    return {(p, u): choose(_synthetic_findings(layout, p, u, policy), family, layout, policy,
-                           "auto", alpha, seed=seed).procedure
-            for p in (False, True) for u in (False, True)}
+    table = {(p, u): choose(_synthetic_findings(layout, p, u, policy), family, layout, policy,
+                            "auto", alpha, seed=seed).procedure
+             for p in (False, True) for u in (False, True)}
+    # the censored and robust branches, taken before the rules (stacked_route)
+    table.update(robust_entries(family, layout, policy))
+    return table
 
 
 @dataclass(frozen=True)
@@ -152,20 +167,36 @@ class _Task:
     alpha: float
     policy: Policy | None          # None: no pipeline
     options: dict | None = None    # the procedures' own options (same for every one)
+    extra: tuple = ()              # (name, kind): rank and score procedures (stacked_scores)
+    table: dict | None = None      # the route table (pipeline only)
+    lazy: frozenset = frozenset()  # procedures only some route keys need: computed on demand
 
 
 def _chunk(task: _Task, size: int, seed: np.random.SeedSequence) -> dict:
+    from .stacked_route import route_keys
+    from .stacked_scores import Skipped, chunk_part
     rng = np.random.default_rng(seed)
     stack = draw(task.design, size, rng)
-    out = {"closed": {name: closed_form_rejects(name, task.family, stack, task.alpha,
-                                                task.options)
-                      for name in task.closed},
-           "warp": {name: warp_statistics(name, task.family, stack, rng, task.options)
-                    for name in task.warp}}
+    keys = None
     if task.policy is not None:
         found = stacked_checks(stack.x, stack.blocks, task.policy,
                                summaries=(stack.means, stack.vars))
-        out["facts"] = (found.shape_poor, found.spread_unequal)
+        keys = route_keys(stack, found, task.policy, task.table)
+    routed = set() if keys is None else {task.table[key] for key in set(keys)}
+    use = [name for name in task.closed + task.warp
+           if name not in task.lazy or name in routed]
+    out = {"closed": {name: closed_form_rejects(name, task.family, stack, task.alpha,
+                                                task.options)
+                      for name in task.closed if name in use},
+           "warp": {name: warp_statistics(name, task.family, stack, rng, task.options)
+                    for name in task.warp if name in use},
+           "extra": {name: (chunk_part(name, kind, task.family, stack, rng, task.alpha)
+                            if name not in task.lazy or name in routed
+                            else Skipped(size, task.family.m))
+                     for name, kind in task.extra},
+           "size": size}
+    if keys is not None:
+        out["keys"] = keys
     return out
 
 
@@ -207,13 +238,27 @@ def simulate(design: Scenario, family: Family, procedures, *, replicates: int,
     pipeline = pipeline or "auto" in procedures
     if pipeline and table is None:
         table = route_table(family, design_layout(design.n, design.sd), policy, alpha)
+    from .stacked_scores import finish, kind_of, method_text
     needed = list(dict.fromkeys(names + (list(table.values()) if pipeline else [])))
-    closed = tuple(p for p in needed if not is_resampling(p))
-    warp = tuple(dict.fromkeys(single_step_name(p) for p in needed if is_resampling(p)))
+    # procedures only the censored or robust keys route to are computed in a
+    # chunk only when one of its rows takes that route
+    lazy = frozenset()
+    if pipeline:
+        rules = {v for k, v in table.items() if isinstance(k[0], bool)}
+        lazy = frozenset(p for p in table.values() if p not in rules and p not in names)
+    kinds = {p: kind_of(p, design.n, policy, options) for p in needed}
+    extra = tuple((p, kinds[p]) for p in needed if kinds[p] is not None)
+    own = [p for p in needed if kinds[p] is None]
+    closed = tuple(p for p in own if not is_resampling(p))
+    warp = tuple(dict.fromkeys(single_step_name(p) for p in own if is_resampling(p)))
+    lazy_warp = frozenset(single_step_name(p) for p in lazy if p in own and is_resampling(p))
+    if lazy_warp & {single_step_name(p) for p in own if p not in lazy and is_resampling(p)}:
+        lazy_warp = frozenset()
     quiet = policy.replace(calibrate_candidates=False) if pipeline else None
     if options and pipeline:
         raise ValueError("procedure options apply to named procedures, not the pipeline")
-    task = _Task(design, family, closed, warp, float(alpha), quiet, dict(options or {}))
+    task = _Task(design, family, closed, warp, float(alpha), quiet, dict(options or {}),
+                 extra, table if pipeline else None, lazy | lazy_warp)
     sizes = chunk_sizes(replicates, CHUNK)
     parts: dict[int, dict] = {}
 
@@ -226,22 +271,34 @@ def simulate(design: Scenario, family: Family, procedures, *, replicates: int,
               n_jobs, backend, scheduler, collect)
     ordered = [parts[i] for i in range(len(sizes))]
     rejects, methods = {}, {}
+    m = family.m
     for name in closed:
-        rejects[name] = np.concatenate([p["closed"][name] for p in ordered])
+        rejects[name] = np.concatenate([p["closed"].get(name, np.zeros((p["size"], m), bool))
+                                        for p in ordered])
         methods[name] = "closed form per replicate"
-    stats = {name: tuple(np.concatenate([p["warp"][name][j] for p in ordered])
-                         for j in range(2)) for name in warp}
+    for name in warp:
+        done = [p for p in ordered if name in p["warp"]]
+        if not done:
+            continue
+        t_obs, t_star = (np.concatenate([p["warp"][name][j] for p in done]) for j in range(2))
+        for full in needed:
+            if kinds[full] is None and is_resampling(full) and single_step_name(full) == name:
+                got = iter(np.split(warp_rejects(full, t_obs, t_star, alpha),
+                                    np.cumsum([p["size"] for p in done])[:-1]))
+                rejects[full] = np.concatenate([next(got) if name in p["warp"]
+                                                else np.zeros((p["size"], m), bool)
+                                                for p in ordered])
+                methods[full] = "warp-speed (one resample per replicate)"
+    for name, kind in extra:
+        rejects[name] = finish(name, kind, [p["extra"][name] for p in ordered], alpha)
+        methods[name] = method_text(name, kind)
     for name in needed:
-        if is_resampling(name):
-            t_obs, t_star = stats[single_step_name(name)]
-            rejects[name] = warp_rejects(name, t_obs, t_star, alpha)
-            methods[name] = "warp-speed (one resample per replicate)"
+        if name not in rejects:      # a procedure only the route needs, never routed to
+            rejects[name] = np.zeros((replicates, m), dtype=bool)
+            methods[name] = "not needed: no replicate took its route"
     routes = None
     if pipeline:
-        poor = np.concatenate([p["facts"][0] for p in ordered])
-        unequal = np.concatenate([p["facts"][1] for p in ordered])
-        routes = np.array([table[(bool(a), bool(b))] for a, b in zip(poor, unequal)],
-                          dtype=object)
+        routes = np.array([table[key] for p in ordered for key in p["keys"]], dtype=object)
         auto = np.zeros((replicates, family.m), dtype=bool)
         for proc in set(table.values()):
             rows = routes == proc

@@ -521,5 +521,10 @@ def test_method_option_and_calibration_refusal(sprays):
     assert "--option method=asymptotic" in res.decision.command
     with pytest.raises(FamwiseInputError, match="option 'method' of 'steel-dwass' must be one of"):
         famwise.compare(small, procedure="steel-dwass", options={"method": "fast"})
-    with pytest.raises(FamwiseInputError, match="does not simulate rank procedures"):
-        famwise.calibrate(small, procedures=["steel-dwass"], replicates=200)
+    # the calibration simulates rank procedures (diagnostics/stacked_ranks.py), with
+    # the method compare would use: permutation for groups of six, unless named
+    cal = famwise.calibrate(small, procedures=["steel-dwass"], replicates=200, seed=1)
+    assert cal.table["method"].iloc[0].startswith("warp-speed")
+    cal = famwise.calibrate(small, procedures=["steel-dwass"], replicates=200, seed=1,
+                            options={"method": "asymptotic"})
+    assert cal.table["method"].iloc[0].startswith("closed form")

@@ -34,7 +34,8 @@ from famwise.diagnostics.shape import anderson_darling as ad_one
 from famwise.diagnostics.simulate import Scenario, draw, route_table, simulate
 from famwise.diagnostics.stacked import (Blocks, anderson_darling, bartlett, brown_forsythe,
                                          fligner, moments, shapiro_wilk, stacked_checks)
-from famwise.diagnostics.stacked_procedures import closed_form_rejects
+from famwise.diagnostics.stacked_procedures import Stack, closed_form_rejects
+from famwise.diagnostics.stacked_route import route_keys
 from famwise.procedures.catalogue import CATALOGUE, run_procedure
 
 VERDICT = {"ok": 0, "concern": 1, "violated": 2}
@@ -117,6 +118,7 @@ def test_verdicts_and_route_equal_the_one_data_set_path(n, sd, skew):
     fam = all_pairs([str(i) for i in range(b.k)])
     layout0 = Layout.from_groups([x[0, s] for s in b.slices()])
     table = route_table(fam, layout0, policy)
+    keys = route_keys(Stack(x, b), found, policy, table)
     robust = 0
     for r in range(len(x)):
         lay = Layout.from_groups([x[r, s] for s in b.slices()])
@@ -126,18 +128,14 @@ def test_verdicts_and_route_equal_the_one_data_set_path(n, sd, skew):
             assert found.get(name).verdict[r] == VERDICT[c.verdict], (r, name, c)
         route = choose(one, fam, lay, policy)
         if route.route == "robust":
-            # A gross value standing apart from well-shaped data takes the robust
-            # route (trimmed means or ranks), which the stacked engine does not
-            # model yet (DEVELOPERS.md, "The simulation engine"): such a data set
-            # must hold a value past the policy's gross threshold.
+            # a gross value standing apart from well-shaped data: the robust route
+            # (trimmed means or ranks), which the stacked route takes too
+            # (diagnostics/stacked_route.py; tests/test_stacked_ranks.py)
             assert gross_values(one, policy), r
             robust += 1
-            continue
-        assert table[(bool(found.shape_poor[r]), bool(found.spread_unequal[r]))] == \
-            route.procedure
+        assert table[keys[r]] == route.procedure, (r, keys[r], route.route)
     # the designs reach more than one route between them
     assert found.shape_poor.any() or found.spread_unequal.any() or not skew
-    # and the stacked route agrees with the rules everywhere else
     assert robust < len(x)
 
 

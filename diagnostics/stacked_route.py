@@ -1,0 +1,175 @@
+"""The route on stacked replicates: the branch of the real route each replicate takes.
+
+:func:`famwise.diagnostics.route.choose` tries, in order, the censored route
+(the data hold non-detects), the robust route (a gross value that stands
+apart, :mod:`famwise.diagnostics.robust_route`) and then the rules on the
+shape and spread checks.  With the sizes, the family and the policy fixed,
+what each branch picks depends on a replicate only through a few facts:
+
+* censored: whether the detection limits of the non-detects differ (between
+  the groups holding them, or within one group);
+* robust: whether every group holding a gross value is large enough to trim
+  (``policy.trimmed_min_n``);
+* the rules: "shape poor" and "spread unequal".
+
+So each replicate gets a *key* (:func:`route_keys`): ``("censored", differ)``,
+``("gross", trimmable)`` or ``(shape_poor, spread_unequal)``, and the route
+table (:func:`famwise.diagnostics.simulate.route_table`) holds the real
+route's answer for each key: :func:`robust_entries` asks
+:func:`famwise.diagnostics.robust_route.gross_route` and
+:func:`~famwise.diagnostics.robust_route.censored_route` themselves, once per
+key, so no routing rule is written twice.
+
+The facts are computed on every row at once: the gross values are the
+modified z-scores (Iglewicz & Hoaglin 1993) above ``policy.gross_outlier_z``
+within groups of three or more, as the outlier check finds them; "stands
+apart" is :func:`~famwise.diagnostics.robust_route.isolated`'s test (the
+normality, skewness and kurtosis checks of the rest pass) run on the rows
+grouped by how many values each group loses, so that every such bucket is
+again a stack of equal-sized groups.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..core.families import Family
+from ..core.layout import Layout
+from .policy import Policy
+from .stacked import VIOLATED, Blocks, moments, normality, standardised
+
+__all__ = ["gross_mask", "isolated_rows", "robust_entries", "route_keys", "limits_differ"]
+
+
+def gross_mask(x: np.ndarray, blocks: Blocks, policy: Policy) -> np.ndarray:
+    """(R, N): the values whose modified z within their group exceeds
+    ``policy.gross_outlier_z`` (groups of three or more, as the outlier check)."""
+    out = np.zeros(x.shape, dtype=bool)
+    for s, size in zip(blocks.slices(), blocks.n):
+        if size < 3:
+            continue
+        g = x[:, s]
+        dev = g - np.median(g, axis=1, keepdims=True)
+        mad = np.median(np.abs(dev), axis=1, keepdims=True)
+        mean_ad = np.mean(np.abs(dev), axis=1, keepdims=True)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            mz = np.where(mad > 0, 0.6745 * dev / mad,
+                          np.where(mean_ad > 0, dev / (1.2533 * mean_ad), 0.0))
+        out[:, s] = np.abs(mz) > policy.gross_outlier_z
+    return out
+
+
+def isolated_rows(x: np.ndarray, blocks: Blocks, mask: np.ndarray,
+                  policy: Policy) -> np.ndarray:
+    """(R,): whether each row's gross values stand apart (the rest of the row
+    passes the normality, skewness and kurtosis checks, or leaves a group
+    with fewer than two values); False for rows without gross values."""
+    r = x.shape[0]
+    out = np.zeros(r, dtype=bool)
+    counts = np.add.reduceat(mask.astype(np.int64), blocks.bounds[:-1], axis=1)
+    rows = np.flatnonzero(counts.sum(axis=1) > 0)
+    if rows.size == 0:
+        return out
+    patterns, which = np.unique(counts[rows], axis=0, return_inverse=True)
+    for p, removed in enumerate(patterns):
+        sel = rows[which.ravel() == p]
+        sizes = blocks.n - removed
+        if np.any(sizes < 2):
+            out[sel] = True
+            continue
+        parts = []
+        for s, size in zip(blocks.slices(), sizes):
+            block, keep = x[sel, s], ~mask[sel, s]
+            parts.append(block[keep].reshape(sel.size, int(size)))
+        rest = np.concatenate(parts, axis=1)
+        rb = Blocks.of(sizes)
+        means, var = rb.summaries(rest)
+        z = standardised(rest, rb, means, var)
+        skew, kurt = moments(z, policy)
+        bad = (normality(z, policy).verdict == VIOLATED) | (skew.verdict == VIOLATED) \
+            | (kurt.verdict == VIOLATED)
+        out[sel] = ~bad
+    return out
+
+
+def limits_differ(censored: np.ndarray, limit_index: np.ndarray, blocks: Blocks) -> np.ndarray:
+    """(R,): whether the non-detects' limits differ, between the groups holding
+    non-detects or within one group (as :func:`censored_route` decides)."""
+    bits = np.where(censored, np.left_shift(np.int64(1), limit_index.astype(np.int64)), 0)
+    held = np.bitwise_or.reduceat(bits, blocks.bounds[:-1], axis=1)        # (R, k)
+    several = np.any(held & (held - 1), axis=1)
+    top = held.max(axis=1)
+    low = np.where(held > 0, held, np.iinfo(np.int64).max).min(axis=1)
+    return several | ((top > 0) & (top != low))
+
+
+def robust_entries(family: Family, layout: Layout, policy: Policy,
+                   limits=(1.0, 2.0)) -> dict:
+    """The real route's choice for the robust and censored keys at ``layout``'s sizes.
+
+    ``("gross", trimmable)``: :func:`gross_route` with one gross value in a
+    group of the right size (absent when no such group, or when the route
+    does not apply: the policy switch, a family that is not pairwise).
+    ``("censored", differ)``: :func:`censored_route` on the layout with one
+    non-detect at one limit, or at two ``limits`` in two groups (absent when
+    the censored route refuses the family).
+    """
+    from ..core.errors import FamwiseInputError
+    from .robust_route import censored_route, gross_route
+    out = {}
+    n = layout.stats.n
+    if policy.gross_outlier_route:
+        for trimmable in (True, False):
+            fits = np.flatnonzero((n >= policy.trimmed_min_n) if trimmable
+                                  else (n >= 3) & (n < policy.trimmed_min_n))
+            if fits.size == 0:
+                continue
+            g = int(fits[0])
+            gross = [{"row": int(layout.rows[layout.codes == g][0]), "group": layout.labels[g],
+                      "value": 0.0, "modified_z": policy.gross_outlier_z + 1.0}]
+            picked = gross_route(gross, layout, family, policy, [])
+            if picked is not None:
+                out[("gross", trimmable)] = picked[0]
+    for differ in (False, True):
+        flags = np.zeros(layout.n_total, dtype=bool)
+        values = layout.values.copy()
+        first = [int(np.flatnonzero(layout.codes == g)[0]) for g in range(min(2, layout.k))]
+        flags[first[0]] = True
+        values[first[0]] = limits[0]
+        if differ and len(first) > 1:
+            flags[first[1]] = True
+            values[first[1]] = limits[1]
+        cens = Layout(values=values, codes=layout.codes, labels=layout.labels,
+                      rows=layout.rows, response=layout.response, group=layout.group,
+                      source=layout.source, censored=flags)
+        try:
+            out[("censored", differ)] = censored_route(cens, family, policy)[0]
+        except FamwiseInputError:
+            pass
+    return out
+
+
+def route_keys(stack, found, policy: Policy, table: dict) -> np.ndarray:
+    """Each row's key into the route table (module notes), in the real route's
+    order: censored, then robust, then the rules."""
+    r = stack.replicates
+    poor, unequal = found.shape_poor, found.spread_unequal
+    keys = np.empty(r, dtype=object)
+    for i in range(r):
+        keys[i] = (bool(poor[i]), bool(unequal[i]))
+    censored = getattr(stack, "censored", None)
+    done = np.zeros(r, dtype=bool)
+    if censored is not None:
+        done = censored.any(axis=1)
+        differ = limits_differ(censored, stack.limit_index, stack.blocks)
+        for i in np.flatnonzero(done):
+            keys[i] = ("censored", bool(differ[i]))
+    if ("gross", True) in table or ("gross", False) in table:
+        mask = gross_mask(stack.x, stack.blocks, policy)
+        mask[done] = False
+        iso = isolated_rows(stack.x, stack.blocks, mask, policy)
+        held = np.add.reduceat(mask.astype(np.int64), stack.bounds[:-1], axis=1) > 0
+        trimmable = ~np.any(held & (stack.n < policy.trimmed_min_n), axis=1)
+        for i in np.flatnonzero(iso):
+            keys[i] = ("gross", bool(trimmable[i]))
+    return keys
