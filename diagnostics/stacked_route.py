@@ -24,9 +24,8 @@ The facts are computed on every row at once: the gross values are the
 modified z-scores (Iglewicz & Hoaglin 1993) above ``policy.gross_outlier_z``
 within groups of three or more, as the outlier check finds them; "stands
 apart" is :func:`~famwise.diagnostics.robust_route.isolated`'s test (the
-normality, skewness and kurtosis checks of the rest pass) run on the rows
-grouped by how many values each group loses, so that every such bucket is
-again a stack of equal-sized groups.
+normality, skewness and kurtosis checks of the rest pass), the rest's
+residuals standardised within groups for all rows at once.
 """
 
 from __future__ import annotations
@@ -36,7 +35,7 @@ import numpy as np
 from ..core.families import Family
 from ..core.layout import Layout
 from .policy import Policy
-from .stacked import VIOLATED, Blocks, moments, normality, standardised
+from .stacked import VIOLATED, Blocks, moments, normality
 
 __all__ = ["gross_mask", "isolated_rows", "robust_entries", "route_keys", "limits_differ"]
 
@@ -63,32 +62,39 @@ def isolated_rows(x: np.ndarray, blocks: Blocks, mask: np.ndarray,
                   policy: Policy) -> np.ndarray:
     """(R,): whether each row's gross values stand apart (the rest of the row
     passes the normality, skewness and kurtosis checks, or leaves a group
-    with fewer than two values); False for rows without gross values."""
+    with fewer than two values); False for rows without gross values.
+
+    The rest's residuals are standardised within each group (the rest's own
+    group means and SDs, two passes) for all rows at once; the rows are then
+    grouped by how many values they lose in all, so that each bucket's
+    pooled residuals form one stack for the normality test and the moments.
+    """
     r = x.shape[0]
     out = np.zeros(r, dtype=bool)
-    counts = np.add.reduceat(mask.astype(np.int64), blocks.bounds[:-1], axis=1)
-    rows = np.flatnonzero(counts.sum(axis=1) > 0)
+    lost = mask.sum(axis=1)
+    rows = np.flatnonzero(lost > 0)
     if rows.size == 0:
         return out
-    patterns, which = np.unique(counts[rows], axis=0, return_inverse=True)
-    for p, removed in enumerate(patterns):
-        sel = rows[which.ravel() == p]
-        sizes = blocks.n - removed
-        if np.any(sizes < 2):
-            out[sel] = True
-            continue
-        parts = []
-        for s, size in zip(blocks.slices(), sizes):
-            block, keep = x[sel, s], ~mask[sel, s]
-            parts.append(block[keep].reshape(sel.size, int(size)))
-        rest = np.concatenate(parts, axis=1)
-        rb = Blocks.of(sizes)
-        means, var = rb.summaries(rest)
-        z = standardised(rest, rb, means, var)
-        skew, kurt = moments(z, policy)
-        bad = (normality(z, policy).verdict == VIOLATED) | (skew.verdict == VIOLATED) \
+    xs, keep, starts, codes = x[rows], ~mask[rows], blocks.bounds[:-1], blocks.codes
+    cnt = np.add.reduceat(keep.astype(np.float64), starts, axis=1)
+    small = np.any(cnt < 2, axis=1)
+    out[rows[small]] = True
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = np.add.reduceat(np.where(keep, xs, 0.0), starts, axis=1) / cnt
+        dev = np.where(keep, xs - mean[:, codes], 0.0)
+        corr = np.add.reduceat(dev, starts, axis=1) / cnt
+        dev = np.where(keep, dev - corr[:, codes], 0.0)
+        var = np.add.reduceat(dev * dev, starts, axis=1) / (cnt - 1)
+        sd = np.sqrt(var)
+        sd = np.where(sd > 0, sd, 1.0)
+        z = dev / (sd * np.sqrt((cnt - 1) / cnt))[:, codes]
+    for c in np.unique(lost[rows][~small]):
+        sel = np.flatnonzero(~small & (lost[rows] == c))
+        zc = z[sel][keep[sel]].reshape(sel.size, x.shape[1] - int(c))
+        skew, kurt = moments(zc, policy)
+        bad = (normality(zc, policy).verdict == VIOLATED) | (skew.verdict == VIOLATED) \
             | (kurt.verdict == VIOLATED)
-        out[sel] = ~bad
+        out[rows[sel]] = ~bad
     return out
 
 
