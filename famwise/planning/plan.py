@@ -451,7 +451,9 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
         from ..diagnostics.simulate import design_layout, route_table
         start_n = sizes[0] if sizes else start
         table = route_table(fam, design_layout(group_sizes(start_n, weights), sds), pol, alpha)
-        chosen = list(dict.fromkeys(table.values()))
+        # the rules' choices (the robust route's, taken only on data sets with a
+        # gross value, are simulated within "auto")
+        chosen = list(dict.fromkeys(v for key, v in table.items() if isinstance(key[0], bool)))
         order = _CANDIDATES[kind]
         procs = [p for p in order if p in chosen] + [p for p in chosen if p not in order] \
             + ["auto"]
