@@ -288,6 +288,9 @@ def build_parser() -> argparse.ArgumentParser:
                                                       "margin under one-pair)")
     _add_file_options(p)
     p.add_argument("--exclude-rows", metavar="N,M,...", help="set aside these pilot rows")
+    p.add_argument("--block", metavar="COL",
+                   help="the pilot's block column: plan a randomised complete block design "
+                        "(one plot of every group per block; --n counts blocks)")
     p.add_argument("--margin", type=float, required=True, metavar="D",
                    help="smallest difference that matters, in the response's unit; with "
                         "--transform log, a ratio of geometric means (1.5: 50%% higher, "
@@ -539,6 +542,10 @@ def _run_plan(args) -> int:
         from ..report.plan_files import PLAN_FILES
         prepare_folder(args.out, PLAN_FILES, force=args.force)   # fail before the work
     read = _read_options(args) if args.file is not None else {}
+    block = read.pop("block", None) or (_split(args.block) if args.block else None)
+    if block is not None and len(block) != 1:
+        raise FamwiseInputError(f"famwise plan takes one block column (--block COL); got "
+                                f"{','.join(block)}")
     result = plan(args.file, args.response, args.group, sd=_numbers(args.sd, "--sd", float),
                   n=_numbers(args.n, "--n", int), margin=args.margin,
                   placement=args.placement, target_power=args.target_power,
@@ -547,7 +554,7 @@ def _run_plan(args) -> int:
                   alpha=args.alpha, shape=args.shape, goal=args.goal,
                   allocation=args.allocation, max_n=args.max_n, policy=args.policy,
                   family=args.family, reference=args.reference, transform=args.transform,
-                  log_offset=args.log_offset, **read)
+                  log_offset=args.log_offset, block=block[0] if block else None, **read)
     if args.out:
         result.save(args.out, force=args.force)
     if args.quiet:

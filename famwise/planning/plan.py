@@ -164,11 +164,11 @@ class _Evaluator:
     """Evaluates every procedure at one size per group, with its own seeds."""
 
     def __init__(self, *, k, sd, mu, errors, weights, family, procedures, alpha, policy,
-                 replicates, root, n_jobs, backend, scheduler, bar):
+                 replicates, root, n_jobs, backend, scheduler, bar, rcbd=None):
         self.__dict__.update(k=k, sd=sd, mu=mu, errors=errors, weights=weights,
                              family=family, procedures=procedures, alpha=alpha, policy=policy,
                              replicates=replicates, root=root, n_jobs=n_jobs, backend=backend,
-                             scheduler=scheduler, bar=bar)
+                             scheduler=scheduler, bar=bar, rcbd=rcbd)
         scale = float(np.max(sd))
         diff = np.abs(family.weights @ mu)
         self.true = diff > 1e-9 * max(scale, float(np.max(np.abs(mu))))
@@ -183,15 +183,24 @@ class _Evaluator:
         from ..diagnostics.simulate import Scenario, design_layout, route_table, simulate
         from ..resample.engine import chunk_seed
         sizes = group_sizes(n, self.weights)
+        key = chunk_seed(self.root, int(n))
+        if self.rcbd is not None:        # n complete blocks (famwise.planning.blocked)
+            alt, null = self.rcbd(int(n), self.mu, self.sd, self.errors,
+                                  replicates=self.replicates, key=key, n_jobs=self.n_jobs,
+                                  backend=self.backend, scheduler=self.scheduler,
+                                  on_chunk=self.bar.update)
+            return self._rows(n, sizes, alt, null)
         table = route_table(self.family, design_layout(sizes, self.sd), self.policy, self.alpha)
         common = dict(replicates=self.replicates, alpha=self.alpha, policy=self.policy,
                       table=table, n_jobs=self.n_jobs, backend=self.backend,
                       scheduler=self.scheduler, on_chunk=self.bar.update)
-        key = chunk_seed(self.root, int(n))
         alt = simulate(Scenario(sizes, tuple(self.mu), tuple(self.sd), self.errors),
                        self.family, self.procedures, seed=chunk_seed(key, 0), **common)
         null = simulate(Scenario(sizes, (0.0,) * self.k, tuple(self.sd), self.errors),
                         self.family, self.procedures, seed=chunk_seed(key, 1), **common)
+        return self._rows(n, sizes, alt, null)
+
+    def _rows(self, n, sizes, alt, null) -> dict:
         r = self.replicates
         rows = []
         for p in self.procedures:
@@ -248,7 +257,7 @@ _CANDIDATES = {"all-pairs": ("tukey-kramer", "games-howell", "dunnett-t3", "perm
                                 "bootstrap-hall")}
 
 
-def _pilot(data, response, group, sd, scale, allocation, shape, read_options):
+def _pilot(data, response, group, sd, scale, allocation, shape, read_options, block=None):
     """What a pilot gives: labels, SDs, means, proportions, errors (on the plan's scale)."""
     import os
     from ..api import load_data
@@ -272,7 +281,11 @@ def _pilot(data, response, group, sd, scale, allocation, shape, read_options):
         raise FamwiseInputError(f"group {small!r} of the pilot has fewer than 2 values, so "
                                 f"its SD is unknown; give sd=[...] instead")
     k, labels = layout.k, layout.labels
-    blocked = blocked_pilot(layout)
+    if block is not None:
+        from .blocked import rcbd_pilot
+        blocked = rcbd_pilot(layout, block)
+    else:
+        blocked = blocked_pilot(layout)
     pilot_sd = blocked["sd"] if blocked else [float(v) for v in st.sd]
     sds = check_sd(sd) if sd is not None else pilot_sd
     if len(sds) != k:
@@ -303,7 +316,7 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
          seed=None, n_jobs=1, backend="threads", alpha=0.05, shape=None, goal="any",
          allocation="equal", max_n=500, scheduler=None, progress=None, policy=None,
          family="all-pairs", reference=None, transform=None, log_offset=None,
-         **read_options) -> Plan:
+         block=None, **read_options) -> Plan:
     """Estimate power and the group size that reaches a target, by simulation.
 
     Parameters
@@ -383,6 +396,14 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
     log_offset : float, optional
         A non-negative constant added to the pilot's values before the log
         (recorded; as for :func:`famwise.compare`).
+    block : str, optional
+        The pilot's block column: plan a randomised complete block design
+        (one plot of every group in each block, so ``n`` and the table's
+        ``n_per_group`` count blocks), analysed under group + block with
+        (k - 1)(b - 1) error df, from each group's residual SD under the
+        pilot's block model (missing plots and several plots per cell are
+        fine; see :mod:`famwise.planning.blocked`).  The procedures are the
+        model route's (default: its candidates and ``"auto"``).
     **read_options
         Passed to :func:`famwise.intake.read`.
 
@@ -416,6 +437,17 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
                                 f"got {replicates!r}")
     if isinstance(max_n, bool) or not isinstance(max_n, numbers.Integral) or max_n < 2:
         raise FamwiseInputError(f"max_n must be a whole number of at least 2; got {max_n!r}")
+    if block is not None:
+        if data is None:
+            raise FamwiseInputError(f"block={block!r} names a column of a pilot; give "
+                                    f"data=FILE with response, group and that column")
+        if not isinstance(block, str):
+            raise FamwiseInputError(f"plan takes one block column (block='COL'); got "
+                                    f"{block!r}")
+        if allocation != "equal":
+            raise FamwiseInputError("allocation='pilot' does not apply with block=: a complete "
+                                    "block design has one plot of every group in each block")
+        read_options = dict(read_options, block=block)
     seed = _seed(seed)
     pol = _policy(policy)
     if data is None:
@@ -437,13 +469,19 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
                      pilot_means=None, weights=np.ones(k), errors=None, shape=shape,
                      source=None, sha=None, pilot_n=None, blocked=None)
     else:
-        pilot = _pilot(data, response, group, sd, scale, allocation, shape, read_options)
+        pilot = _pilot(data, response, group, sd, scale, allocation, shape, read_options, block)
     k, labels, sds = pilot["k"], pilot["labels"], pilot["sds"]
     if k < 2:
         raise FamwiseInputError(f"plan needs at least 2 groups; got {k}")
     kind, ref_label = check_family(family, reference, labels)
-    procs = check_procedures(procedures, kind)
     fam = build_family(labels, kind, ref_label)
+    rcbd = None
+    if block is not None:
+        from .blocked import RcbdEvaluator, rcbd_procedures
+        procs = rcbd_procedures(procedures, kind)
+        rcbd = RcbdEvaluator(labels, pilot["blocked"]["block"], fam, procs, alpha, pol)
+    else:
+        procs = check_procedures(procedures, kind)
     mu = true_means(placement, k, shift, pilot["pilot_means"], fam.reference)
     weights, blocked = pilot["weights"], pilot["blocked"]
     start = first_size(shift, sds, alpha, fam.m)
@@ -465,7 +503,7 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
     evaluate = _Evaluator(k=k, sd=np.asarray(sds), mu=mu, errors=pilot["errors"],
                           weights=weights, family=fam, procedures=procs, alpha=alpha,
                           policy=pol, replicates=int(replicates), root=root, n_jobs=n_jobs,
-                          backend=backend, scheduler=scheduler, bar=bar)
+                          backend=backend, scheduler=scheduler, bar=bar, rcbd=rcbd)
     notes = []
     try:
         if sizes:
@@ -495,7 +533,8 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
     scale_name = "ratio" if scale.name == "log" else "difference"
     table = pd.DataFrame(rows, columns=list(COLUMNS))
     table.attrs.update(margin=margin, margin_scale=scale_name, transform=scale.name,
-                       family=kind, reference=ref_label)
+                       family=kind, reference=ref_label,
+                       unit="blocks" if rcbd is not None else "observations")
     true_pairs = [name for name, t in zip(fam.names, evaluate.true) if t]
     settings = {
         "source": pilot["source"], "sha256": pilot["sha"], "response": response,
@@ -510,6 +549,9 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
         "family": kind, "reference": ref_label, "comparisons": list(fam.names),
         "m": fam.m, "policy": pol.to_dict(),
         "pilot_model": blocked["model"] if blocked else None,
+        "blocks": ({"column": blocked["block"], "design": "randomised complete blocks",
+                    "plots_per_cell": 1, "error_df": "(k - 1)(b - 1)"}
+                   if rcbd is not None else None),
     }
     if blocked:
         notes.append(blocked["note"])

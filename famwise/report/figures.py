@@ -339,8 +339,9 @@ _MARKERS = ("o", "s", "^", "D", "v", "P", "X")
 
 
 def power_curve_svg(n, series: dict, target: float, *, what: str = "power",
-                    highlight: str | None = None) -> str:
-    """Return the power-curve plot: power against n per group, one line per
+                    highlight: str | None = None,
+                   unit: str = "observations per group") -> str:
+    """Return the power-curve plot: power against n per group (``unit``), one line per
     procedure (the highlighted one in the accent colour), and the target line.
 
     ``series`` maps a procedure's name to its powers at ``n`` (NaN where not
@@ -366,14 +367,14 @@ def power_curve_svg(n, series: dict, target: float, *, what: str = "power",
         if x.size:
             span = float(x.max() - x.min()) or 1.0
             ax.set_xlim(x.min() - 0.04 * span, x.max() + 0.04 * span)
-        ax.set_xlabel("observations per group")
+        ax.set_xlabel(unit)
         ax.set_ylabel(what)
         ax.grid(True, color="#e6e6e6", lw=0.6)
         ax.set_axisbelow(True)
         fig.legend(loc="outside upper left", ncol=3, fontsize=8)
 
     return svg_text(draw, "power", (7.2, 4.2),
-                    f"Estimated {what} against observations per group, one line per "
+                    f"Estimated {what} against {unit}, one line per "
                     f"procedure, with the target line")
 
 

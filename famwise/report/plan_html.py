@@ -83,9 +83,13 @@ def _curves(result) -> str:
                 label += " (liberal here)"
             series[label] = [
                 float(sub.get(v, np.nan)) for v in n]
+        unit = ("blocks (one plot of every group in each)" if s.get("blocks")
+                else "observations per group")
         svg = figures.power_curve_svg(n, series, s["target_power"], what=what,
-                                      highlight="automatic pipeline")
-        out.append(_figure(svg, f"Estimated {what} against observations per group "
+                                      highlight="automatic pipeline",
+                                      unit="blocks" if s.get("blocks") else
+                                      "observations per group")
+        out.append(_figure(svg, f"Estimated {what} against {unit} "
                                 f"({margin_words(s)}), one line "
                                 f"per procedure; the dashed line is the target "
                                 f"{s['target_power']:g}. Each point is a Monte Carlo "
@@ -111,7 +115,7 @@ def _sizes(result) -> str:
     liberal = liberal_procedures(result)
     rows = [row + ("no" if (("auto" if row[0] == "automatic pipeline" else row[0]) in liberal)
                    else "yes",) for row in rows]
-    body = _table(["procedure", "per group", "group sizes", f"power ({s['goal']})",
+    body = _table(["procedure", "blocks" if s.get("blocks") else "per group", "group sizes", f"power ({s['goal']})",
                    "familywise error at the null", "holds its level (over the sizes tried)"],
                   rows, numeric=(1, 3, 4))
     return _section("sizes", body + "<p>" + "</p><p>".join(

@@ -119,20 +119,23 @@ def plan_statements(result) -> list[str]:
            f"; familywise alpha {s['alpha']:g}; {s['replicates']} simulated data sets per size "
            f"(seed {s['seed']})."]
     rec = result.recommended
+    # a blocked plan counts complete blocks (one plot of every group in each)
+    per = "blocks" if s.get("blocks") else "per group"
     lines = []
     for p, v in rec.items():
         name = "the automatic pipeline" if p == "auto" else p
         if v is None:
             lines.append(f"{name}: not reached among the sizes tried")
         else:
-            lines.append(f"{name}: {v} per group")
-    out.append(f"Smallest size per group with power {s['target_power']:g} to find {what}: "
+            lines.append(f"{name}: {v} {per}")
+    out.append(f"Smallest {'number of blocks' if s.get('blocks') else 'size per group'} "
+               f"with power {s['target_power']:g} to find {what}: "
                + "; ".join(lines) + ".")
     liberal = liberal_procedures(result)
     if liberal:
         listed = ", ".join(f"{'the automatic pipeline' if p == 'auto' else p} "
                            f"({v['mean']:.3f} on average over the sizes tried, "
-                           f"{v['worst']:.3f} at {v['worst_n']} per group)"
+                           f"{v['worst']:.3f} at {v['worst_n']} {per})"
                            for p, v in liberal.items())
         out.append(f"Not holding the familywise level at this design (estimated error at the "
                    f"complete null above alpha by more than Monte Carlo error, judged over "
@@ -142,7 +145,7 @@ def plan_statements(result) -> list[str]:
     if auto is not None:
         route = result.route_at(auto)
         if route:
-            out.append(f"At {auto} per group the route would choose {route[0]} for "
+            out.append(f"At {auto} {per} the route would choose {route[0]} for "
                        f"{100 * route[1]:.0f}% of data sets like these.")
     return out + list(result.notes)
 
