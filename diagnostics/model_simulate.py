@@ -9,7 +9,7 @@ procedure that reads the model are evaluated on all of them at once
 * Routing.  With the design and the family fixed, the model route
   (:func:`famwise.diagnostics.model_route.choose_model`) reads a replicate
   only through two facts, "shape poor" and "spread unequal", so
-  :func:`famwise.diagnostics.simulate.route_table` asks the route once for
+  :func:`model_route_table` asks the route once for
   each of the four combinations and each row looks its procedure up
   (``tests/test_stacked_model.py`` checks this against
   ``choose(run_checks(...))`` replicate by replicate).
@@ -40,15 +40,30 @@ from ..core.layout import Layout
 from ..procedures import adjust
 from ..procedures.catalogue import CATALOGUE, run_procedure
 from .policy import Policy
-from .simulate import CHUNK, Simulation, route_table
+from .simulate import CHUNK, Simulation
 from .stacked_model import WARP_MODEL, ModelAlgebra, model_checks_stacked
 from .stacked_procedures import single_step_name, warp_rejects
 
-__all__ = ["ModelScenario", "simulate_model", "model_simulated", "DUAL"]
+__all__ = ["ModelScenario", "simulate_model", "model_simulated", "model_route_table",
+           "DUAL"]
 
 #: Single-step procedures whose decisions are |t_j| > c_j with c_j fixed by the design.
 DUAL = ("tukey-kramer", "dunnett", "bonferroni", "sidak", "scheffe", "multivariate-t")
 _STEPWISE = ("holm", "bh", "lsd")
+
+
+def model_route_table(family: Family, layout: Layout, policy: Policy | None = None,
+                      alpha: float = 0.05) -> dict:
+    """``{(shape_poor, spread_unequal): procedure}`` of the model route at ``layout``'s
+    design: :func:`famwise.diagnostics.route.choose` on findings with exactly that
+    pair of facts (the censored and robust branches of the one-way route are not
+    taken with blocks or covariates)."""
+    from .route import choose
+    from .simulate import _synthetic_findings
+    policy = policy or Policy()
+    return {(p, u): choose(_synthetic_findings(layout, p, u, policy), family, layout, policy,
+                           "auto", alpha).procedure
+            for p in (False, True) for u in (False, True)}
 
 
 def model_simulated(name: str) -> bool:
@@ -143,10 +158,10 @@ def simulate_model(scenario: ModelScenario, family: Family, procedures, *, repli
 
     ``procedures`` may include ``"auto"`` (the pipeline: checks and route on
     every replicate).  ``table`` is the route table
-    (:func:`famwise.diagnostics.simulate.route_table` on the scenario's
-    layout), ``algebra`` and ``crit`` the design's fixed parts; each is
-    built when omitted.  Procedures the model simulation does not cover are
-    refused here (:func:`model_simulated`); the caller reports them.
+    (:func:`model_route_table` on the scenario's layout), ``algebra`` and
+    ``crit`` the design's fixed parts; each is built when omitted.
+    Procedures the model simulation does not cover are refused here
+    (:func:`model_simulated`); the caller reports them.
     """
     from ..resample.engine import chunk_seed, chunk_sizes, run_tasks
     policy = policy or Policy()
@@ -154,7 +169,7 @@ def simulate_model(scenario: ModelScenario, family: Family, procedures, *, repli
     names = [p for p in procedures if p != "auto"]
     pipeline = "auto" in procedures
     if pipeline and table is None:
-        table = route_table(family, layout, policy, alpha)
+        table = model_route_table(family, layout, policy, alpha)
     needed = list(dict.fromkeys(names + (list(table.values()) if pipeline else [])))
     missing = [p for p in needed if not model_simulated(p)]
     if missing:

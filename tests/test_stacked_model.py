@@ -27,9 +27,9 @@ import pytest
 from famwise.core.families import all_pairs, vs_reference
 from famwise.core.layout import Design, Layout
 from famwise.diagnostics import Policy, run_checks
-from famwise.diagnostics.model_simulate import ModelScenario, simulate_model
+from famwise.diagnostics.model_simulate import (ModelScenario, model_route_table,
+                                                simulate_model)
 from famwise.diagnostics.route import choose
-from famwise.diagnostics.simulate import route_table
 from famwise.diagnostics.stacked_model import ModelAlgebra, model_checks_stacked
 from famwise.model import fit_model
 from famwise.procedures import run_procedure
@@ -120,7 +120,7 @@ def test_checks_and_route_equal_run_checks_and_choose_replicate_by_replicate(cas
     sd = np.linspace(1.0, 5.0, lay.k)
     y = _draw(lay, r, 7, sd=sd, skew=True)
     found = model_checks_stacked(alg, y, policy)
-    table = route_table(fam, lay, policy, 0.05)
+    table = model_route_table(fam, lay, policy, 0.05)
     picked = [table[(bool(a), bool(b))] for a, b in zip(found.shape_poor,
                                                           found.spread_unequal)]
     seen = set()

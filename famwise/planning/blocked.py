@@ -150,12 +150,11 @@ class RcbdEvaluator:
     def __call__(self, b: int, mu, sd, errors, *, replicates, key, n_jobs, backend,
                  scheduler, on_chunk):
         from ..diagnostics.model_simulate import (DUAL, ModelScenario, critical_values,
-                                                  simulate_model)
-        from ..diagnostics.simulate import route_table
+                                                  model_route_table, simulate_model)
         from ..diagnostics.stacked_model import ModelAlgebra
         from ..resample.engine import chunk_seed
         lay = rcbd_layout(self.labels, b, self.block)
-        table = route_table(self.family, lay, self.policy, self.alpha)
+        table = model_route_table(self.family, lay, self.policy, self.alpha)
         needed = set(self.procedures) | set(table.values())
         crit = critical_values([p for p in DUAL if p in needed], lay, self.family, self.alpha)
         common = dict(replicates=replicates, alpha=self.alpha, policy=self.policy,
