@@ -111,8 +111,12 @@ def check_procedures(procedures, family: str) -> list[str] | None:
     stacked-replicate engine simulates."""
     if procedures is None:
         return None
-    from ..diagnostics.stacked_procedures import SIMULATED
+    from ..diagnostics.stacked_procedures import SIMULATED as CLOSED_AND_WARP
+    from ..diagnostics.stacked_ranks import RANK_PROCEDURES
     from ..procedures.catalogue import CATALOGUE, check_procedure
+    # the censored-score procedures (gehan-maxt, peto-maxt) are for non-detects,
+    # which a plan's pilot may not hold; they are simulated on censored scenarios only
+    SIMULATED = CLOSED_AND_WARP | frozenset(RANK_PROCEDURES)
     if isinstance(procedures, str):
         procedures = [procedures]
     fits = [n for n, i in CATALOGUE.items() if family in i.families and n in SIMULATED]
