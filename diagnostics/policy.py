@@ -157,8 +157,9 @@ class Policy:
     peto_when_limits_differ: bool = True
     log_slope_tolerance: float = 0.35
     log_min_groups: int = 3
-    power_route: bool = False
-    power_replicates: int = 1000
+    power_route: bool = True
+    power_replicates: int = 2000
+    power_pool_spreads: bool = True
     power_at: float = 0.5
     power_fwer_se: float = 2.0
     power_gain_min: float = 0.02

@@ -198,7 +198,7 @@ def decisions(names, family: Family, null, alt, alpha: float, rng_null, rng_alt)
 def power_calibration(layout: Layout, family: Family, policy: Policy | None = None, *,
                       alpha: float = 0.05, seed=0, margin: float | None = None,
                       procedures=None, replicates: int | None = None,
-                      shape: str = "observed") -> dict:
+                      shape: str = "observed", pool_spreads: bool = False) -> dict:
     """Each candidate's FWER under the complete null and its power, at ``layout``'s design.
 
     Parameters
@@ -221,6 +221,9 @@ def power_calibration(layout: Layout, family: Family, policy: Policy | None = No
     shape : {"observed", "normal"}, default="observed"
         Errors resampled from the observed standardised residuals (what the
         route uses), or normal (for checks against closed forms).
+    pool_spreads : bool, default=False
+        Simulate every group at the pooled SD instead of its own (what the
+        route does when the spread checks pass; :func:`choose_by_power`).
 
     Returns
     -------
@@ -240,6 +243,8 @@ def power_calibration(layout: Layout, family: Family, policy: Policy | None = No
     st = layout.stats
     n = np.asarray(st.n, dtype=np.int64)
     sd = np.asarray(st.sd, dtype=float)
+    if pool_spreads:
+        sd = np.full(sd.shape, float(np.sqrt(np.sum((n - 1) * sd ** 2) / np.sum(n - 1))))
     if shape not in ("observed", "normal"):
         raise FamwiseInputError(f"shape must be 'observed' or 'normal'; got {shape!r}")
     errors = standardised_residuals(layout) if shape == "observed" else None
@@ -290,9 +295,11 @@ def power_calibration(layout: Layout, family: Family, policy: Policy | None = No
                      "power": power, "power_se": float(np.sqrt(power * (1 - power) / reps))})
     errors_text = ("errors resampled from the observed standardised residuals"
                    if errors is not None else "normal errors")
+    sds_text = "the pooled SD in every group" if pool_spreads else "the observed SDs"
     out = {"method": (f"complete null and one shifted comparison at the observed sizes and "
-                      f"SDs, {errors_text}; closed forms per data set, resampling by the "
-                      f"warp-speed method"),
+                      f"{sds_text}, {errors_text}; closed forms per data set, resampling by "
+                      f"the warp-speed method"),
+           "spreads": "pooled" if pool_spreads else "observed",
            "replicates": reps, "seed": None if seed is None else int(seed),
            "alternative": alt_text,
            "limit_rule": f"fwer <= alpha + {policy.power_fwer_se:g} SE",
@@ -304,13 +311,26 @@ def power_calibration(layout: Layout, family: Family, policy: Policy | None = No
 
 
 def choose_by_power(rule_choice: str, layout: Layout, family: Family, policy: Policy, *,
-                    alpha: float = 0.05, seed=0, margin: float | None = None) -> dict | None:
+                    alpha: float = 0.05, seed=0, margin: float | None = None,
+                    spreads_agree: bool = False) -> dict | None:
     """Return the power choice (among the resampling candidates only when the
     rules chose resampling because the shape is poor, unless
     ``policy.power_closed_when_skewed``): ``procedure``, ``sentence``, ``record`` and
     ``set_aside`` (the rules' choice and why, when it is replaced), or None
     when the design cannot be simulated (a group without spread) or the rules'
-    choice is too slow to simulate (:data:`SLOW`)."""
+    choice is too slow to simulate (:data:`SLOW`).
+
+    ``spreads_agree``: the spread checks passed; with
+    ``policy.power_pool_spreads`` the calibration then simulates every group
+    at the pooled SD, the estimate the checks support, instead of the
+    observed SDs, whose noise in small groups makes an exact pooled
+    procedure look liberal exactly when a small group's SD comes out large.
+
+    A candidate replaces the rules' choice only when it is more powerful: a
+    rules' choice that does not hold at the calibration is kept when every
+    candidate that holds is less powerful (its familywise error then
+    reflects the noise of the observed picture as much as the design, and
+    the rules chose it for validity at designs like this one)."""
     st = layout.stats
     if rule_choice in SLOW or rule_choice not in CATALOGUE:
         return None
@@ -320,12 +340,14 @@ def choose_by_power(rule_choice: str, layout: Layout, family: Family, policy: Po
     names = candidates(family, rule_choice, skewed and not policy.power_closed_when_skewed)
     if int(st.n.min()) < policy.games_howell_min_n and rule_choice != "games-howell":
         names = [p for p in names if p != "games-howell"]
+    pooled = bool(spreads_agree and policy.power_pool_spreads)
     rec = power_calibration(layout, family, policy, alpha=alpha, seed=seed, margin=margin,
-                            procedures=names)
+                            procedures=names, pool_spreads=pooled)
     rows = {r["procedure"]: r for r in rec["candidates"]}
     holding = [r for r in rec["candidates"] if r["holds"]]
     rule = rows[rule_choice]
-    head = (f"A calibration at the observed sizes, spreads and residual shape "
+    spreads = ("the pooled SD (the spread checks pass)" if pooled else "the observed spreads")
+    head = (f"A calibration at the observed sizes, {spreads} and residual shape "
             f"({rec['replicates']} simulated data sets) estimated each candidate's familywise "
             f"error under the complete null and its power against "
             f"{rec['alternative']['sentence']}.")
@@ -336,7 +358,15 @@ def choose_by_power(rule_choice: str, layout: Layout, family: Family, policy: Po
                 f"familywise error at this design may exceed alpha.")
     else:
         best = max(holding, key=lambda r: (r["power"], -r["fwer"]))
-        if rule["holds"] and best["power"] - rule["power"] < policy.power_gain_min:
+        if not rule["holds"] and best["power"] < rule["power"]:
+            chosen = rule_choice
+            text = (f"{head} The rules' choice, {rule_choice}, came out at familywise error "
+                    f"{rule['fwer']:.3f} (SE {rule['fwer_se']:.3f}) there, above the limit, "
+                    f"but every candidate that holds is less powerful (the most powerful, "
+                    f"{best['procedure']}, {best['power']:.3f} against {rule['power']:.3f}); "
+                    f"a calibration at the observed picture of a small study is too noisy "
+                    f"to give up the rules' choice for less power, so it is kept.")
+        elif rule["holds"] and best["power"] - rule["power"] < policy.power_gain_min:
             chosen = rule_choice
             text = (f"{head} {rule_choice} holds alpha there (familywise error "
                     f"{rule['fwer']:.3f}, SE {rule['fwer_se']:.3f}) with power "

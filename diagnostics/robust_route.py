@@ -109,10 +109,14 @@ def censored_route(layout: Layout, family: Family, policy: Policy):
 
 
 def gross_values(findings: Findings, policy: Policy) -> list[dict]:
-    """The outliers whose modified z exceeds the policy's gross threshold."""
+    """The outliers the check marked gross (:func:`famwise.diagnostics.shape.is_gross`:
+    the modified z beyond the policy's gross threshold within the group and
+    on the pooled scale); a model's outlier check, which has no pooled
+    scale, by its modified z alone."""
     check = findings.get("outliers")
     found = (check.details or {}).get("outliers", []) if check is not None else []
-    return [d for d in found if abs(d["modified_z"]) > policy.gross_outlier_z]
+    return [d for d in found if d.get("gross", abs(d.get("modified_z", 0.0))
+                                      > policy.gross_outlier_z)]
 
 
 def isolated(gross: list[dict], layout: Layout, policy: Policy) -> bool:

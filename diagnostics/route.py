@@ -158,17 +158,19 @@ def _unequal_all_pairs(layout, policy, alpha, seed):
 
 
 def power_step(route: Route, layout: Layout, family: Family, policy: Policy, alpha: float,
-               seed, margin: float | None = None) -> Route:
+               seed, margin: float | None = None, spreads_agree: bool = False) -> Route:
     """The route's last step (``policy.power_route``): keep the rules' choice, or
     replace it by the most powerful candidate that holds alpha at the observed
-    design (:func:`famwise.diagnostics.power_choice.choose_by_power`)."""
+    design (:func:`famwise.diagnostics.power_choice.choose_by_power`;
+    ``spreads_agree``: the spread checks passed, so the calibration may pool
+    the SDs)."""
     import dataclasses
     if not policy.power_route or route.chosen_by != "policy" \
             or route.route not in ("classical", "unequal", "resample"):
         return route
     from .power_choice import choose_by_power
     picked = choose_by_power(route.procedure, layout, family, policy, alpha=alpha,
-                             seed=seed, margin=margin)
+                             seed=seed, margin=margin, spreads_agree=spreads_agree)
     if picked is None:
         return route
     record = picked["record"]
@@ -281,6 +283,7 @@ def _choose(findings: Findings, family: Family, layout: Layout, policy: Policy,
                          tuple(Alternative(*a) for a in alts), (),
                          tuple(warnings + warn), None, second)
     reasons, alternatives, calibration = [], [], None
+    spreads_agree = not unequal
     n = layout.stats.n
     fragile = (policy.welch_when_small_unbalanced and not unequal
                and n.min() < policy.games_howell_min_n
@@ -365,4 +368,4 @@ def _choose(findings: Findings, family: Family, layout: Layout, policy: Policy,
                        "normal errors, but the checks have little power there.")
     return power_step(Route(route, proc, "policy", tuple(reasons), tuple(alternatives), (),
                             tuple(warnings), calibration, crosscheck_procedure(proc, family)),
-                      layout, family, policy, alpha, seed, margin)
+                      layout, family, policy, alpha, seed, margin, spreads_agree)

@@ -41,7 +41,7 @@ from scipy import special, stats
 
 from .policy import Policy
 
-__all__ = ["Blocks", "StackedCheck", "StackedFindings", "stacked_checks",
+__all__ = ["Blocks", "StackedCheck", "modified_z_rows", "StackedFindings", "stacked_checks",
            "shapiro_wilk", "shapiro_coefficients", "brown_forsythe", "bartlett", "fligner",
            "anderson_darling", "moments", "outliers", "sd_ratio", "pairing"]
 
@@ -328,25 +328,48 @@ def moments(z: np.ndarray, policy: Policy) -> tuple[StackedCheck, StackedCheck]:
             StackedCheck("kurtosis", kurt, nan, judge(kurt, policy.kurtosis_limit, se_kurt)))
 
 
-def outliers(x: np.ndarray, blocks: Blocks, policy: Policy) -> StackedCheck:
-    """The largest flagged |modified z| within a group of each row (0 when none),
-    with :func:`famwise.diagnostics.shape.modified_z`'s fall-back when the MAD is 0."""
+def modified_z_rows(x: np.ndarray, blocks: Blocks) -> tuple[np.ndarray, np.ndarray]:
+    """(R, N) modified z-scores of every value within its group and on the
+    pooled scale, row by row, as :func:`famwise.diagnostics.shape.modified_z`
+    and :func:`~famwise.diagnostics.shape.pooled_scale` compute them for one
+    data set (0 in groups of fewer than three)."""
     r = x.shape[0]
-    worst = np.zeros(r)
+    within = np.zeros(x.shape)
+    dev_all = np.zeros(x.shape)
+    used = np.zeros(x.shape[1], dtype=bool)
     for s, size in zip(blocks.slices(), blocks.n):
         if size < 3:
             continue
         g = x[:, s]
-        med = np.median(g, axis=1, keepdims=True)
-        dev = g - med
+        dev = g - np.median(g, axis=1, keepdims=True)
         mad = np.median(np.abs(dev), axis=1, keepdims=True)
         mean_ad = np.mean(np.abs(dev), axis=1, keepdims=True)
         with np.errstate(invalid="ignore", divide="ignore"):
-            mz = np.where(mad > 0, 0.6745 * dev / mad,
-                          np.where(mean_ad > 0, dev / (1.2533 * mean_ad), 0.0))
-        worst = np.maximum(worst, np.abs(mz).max(axis=1))
+            within[:, s] = np.where(mad > 0, 0.6745 * dev / mad,
+                                    np.where(mean_ad > 0, dev / (1.2533 * mean_ad), 0.0))
+        dev_all[:, s] = dev
+        used[s] = True
+    pooled = np.zeros(x.shape)
+    if used.any():
+        a = np.abs(dev_all[:, used])
+        mad = np.median(a, axis=1)
+        scale = np.where(mad > 0, mad / 0.6745, 1.2533 * a.mean(axis=1))
+        with np.errstate(invalid="ignore", divide="ignore"):
+            pooled = np.where(scale[:, None] > 0, dev_all / scale[:, None], 0.0)
+    return within, pooled
+
+
+def outliers(x: np.ndarray, blocks: Blocks, policy: Policy) -> StackedCheck:
+    """The largest flagged |modified z| within a group of each row (0 when none),
+    violated when a value is gross (:func:`famwise.diagnostics.shape.is_gross`),
+    as :func:`famwise.diagnostics.shape.outliers` judges one data set."""
+    from .shape import is_gross
+    r = x.shape[0]
+    within, pooled = modified_z_rows(x, blocks)
+    worst = np.abs(within).max(axis=1) if x.shape[1] else np.zeros(r)
+    gross = is_gross(within, pooled, policy).any(axis=1)
     found = worst > policy.outlier_z
-    verdict = np.where(found, np.where(worst > policy.gross_outlier_z, VIOLATED, CONCERN), OK)
+    verdict = np.where(found, np.where(gross, VIOLATED, CONCERN), OK)
     return StackedCheck("outliers", np.where(found, worst, 0.0), np.full(r, np.nan),
                         verdict.astype(np.int8))
 

@@ -22,7 +22,8 @@ key, so no routing rule is written twice.
 
 The facts are computed on every row at once: the gross values are the
 modified z-scores (Iglewicz & Hoaglin 1993) above ``policy.gross_outlier_z``
-within groups of three or more, as the outlier check finds them; "stands
+within groups of three or more and on the pooled scale, as the outlier check
+finds them; "stands
 apart" is :func:`~famwise.diagnostics.robust_route.isolated`'s test (the
 normality, skewness and kurtosis checks of the rest pass), the rest's
 residuals standardised within groups for all rows at once.
@@ -35,27 +36,17 @@ import numpy as np
 from ..core.families import Family
 from ..core.layout import Layout
 from .policy import Policy
-from .stacked import VIOLATED, Blocks, moments, normality
+from .stacked import VIOLATED, Blocks, modified_z_rows, moments, normality
 
 __all__ = ["gross_mask", "isolated_rows", "robust_entries", "route_keys", "limits_differ"]
 
 
 def gross_mask(x: np.ndarray, blocks: Blocks, policy: Policy) -> np.ndarray:
-    """(R, N): the values whose modified z within their group exceeds
-    ``policy.gross_outlier_z`` (groups of three or more, as the outlier check)."""
-    out = np.zeros(x.shape, dtype=bool)
-    for s, size in zip(blocks.slices(), blocks.n):
-        if size < 3:
-            continue
-        g = x[:, s]
-        dev = g - np.median(g, axis=1, keepdims=True)
-        mad = np.median(np.abs(dev), axis=1, keepdims=True)
-        mean_ad = np.mean(np.abs(dev), axis=1, keepdims=True)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            mz = np.where(mad > 0, 0.6745 * dev / mad,
-                          np.where(mean_ad > 0, dev / (1.2533 * mean_ad), 0.0))
-        out[:, s] = np.abs(mz) > policy.gross_outlier_z
-    return out
+    """(R, N): the gross values (:func:`famwise.diagnostics.shape.is_gross`: modified
+    z beyond ``policy.gross_outlier_z`` within the group, of three or more, and
+    on the pooled scale), as the outlier check finds them."""
+    from .shape import is_gross
+    return is_gross(*modified_z_rows(x, blocks), policy)
 
 
 def isolated_rows(x: np.ndarray, blocks: Blocks, mask: np.ndarray,

@@ -223,9 +223,11 @@ def test_margin_sets_the_alternative():
 
 def test_switched_off_and_user_choice_skip_the_step(tmp_path):
     lay = exact_layout((4, 6, 8, 12, 20, 30), (1.0,) * 6, seed=1)
-    assert Policy().power_route is False                          # the default
-    assert route_of(lay, Policy()).calibration is None
+    assert Policy().power_route is True                           # the default
+    assert route_of(lay, Policy(power_route=False)).calibration is None
     path = tmp_path / "policy.toml"
+    path.write_text("[policy]\npower_route = false\n")
+    assert route_of(lay, load_policy(path)).calibration is None
     path.write_text("[policy]\npower_route = true\npower_replicates = 400\n")
     pol = load_policy(path)
     assert (pol.power_route, pol.power_replicates) == (True, 400)
@@ -275,13 +277,55 @@ def test_choice_logic_none_holds_gain_too_small_and_rule_liberal(monkeypatch):
         ("tukey-kramer", 0.05, 0.01, True, 0.33, 0.01)]))
     got = pc.choose_by_power("dunnett-t3", lay, fam, ON)
     assert got["procedure"] == "tukey-kramer" and "less powerful" in got["set_aside"]
-    # a liberal rule choice is replaced by the best that holds, even a weaker one
+    # a rules' choice above the limit is not given up for a weaker one ...
     monkeypatch.setattr(pc, "power_calibration", _fake([
         ("games-howell", 0.09, 0.008, False, 0.40, 0.01),
         ("dunnett-t3", 0.045, 0.007, True, 0.30, 0.01),
         ("bootstrap-hall", 0.02, 0.004, True, 0.20, 0.01)]))
     got = pc.choose_by_power("games-howell", lay, fam, ON)
-    assert got["procedure"] == "dunnett-t3" and "above the limit" in got["set_aside"]
+    assert got["procedure"] == "games-howell" and got["set_aside"] is None
+    assert "less powerful" in got["sentence"] and "kept" in got["sentence"]
+    # ... but is replaced by a candidate that holds and is at least as powerful
+    monkeypatch.setattr(pc, "power_calibration", _fake([
+        ("dunnett-t3", 0.09, 0.008, False, 0.30, 0.01),
+        ("tukey-kramer", 0.045, 0.007, True, 0.36, 0.01)]))
+    got = pc.choose_by_power("dunnett-t3", lay, fam, ON)
+    assert got["procedure"] == "tukey-kramer" and "above the limit" in got["set_aside"]
+
+
+def test_spread_checks_that_pass_pool_the_sds_of_the_calibration(monkeypatch):
+    """With the spread checks passed, the calibration simulates every group at
+    the pooled SD sqrt(sum (n_i - 1) s_i^2 / (N - k)) (the estimate of one
+    common SD; common practice, no source), and the record says so."""
+    import famwise.diagnostics.power_choice as pc
+    lay = exact_layout((4, 6, 8), (1.0, 1.0, 1.0), seed=4)
+    fam = all_pairs(lay.labels)
+    seen = {}
+    real = pc.power_calibration
+
+    def spy(*args, **kw):
+        seen["pool"] = kw.get("pool_spreads")
+        return real(*args, **kw)
+    monkeypatch.setattr(pc, "power_calibration", spy)
+    pc.choose_by_power("dunnett-t3", lay, fam, ON.replace(power_replicates=200),
+                       spreads_agree=True)
+    assert seen["pool"] is True
+    pc.choose_by_power("dunnett-t3", lay, fam, ON.replace(power_replicates=200),
+                       spreads_agree=False)
+    assert seen["pool"] is False
+    pc.choose_by_power("dunnett-t3", lay, fam,
+                       ON.replace(power_replicates=200, power_pool_spreads=False),
+                       spreads_agree=True)
+    assert seen["pool"] is False
+    rec = real(lay, fam, ON, replicates=200, pool_spreads=True, procedures=["tukey-kramer"])
+    assert rec["spreads"] == "pooled" and "pooled SD" in rec["method"]
+    # the pooled SD: one SD in every group, so Tukey-Kramer is exact there and
+    # holds (normal errors; Tukey-Kramer exact at equal SDs with equal n, and
+    # conservative with unequal n, Hayter 1984)
+    rec = real(lay, fam, ON, replicates=4000, pool_spreads=True, procedures=["tukey-kramer"],
+               shape="normal")
+    row = rec["candidates"][0]
+    assert row["fwer"] <= 0.05 + 3 * np.sqrt(0.05 * 0.95 / 4000)
 
 
 def test_a_group_without_spread_is_left_to_the_rules():

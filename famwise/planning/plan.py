@@ -34,6 +34,8 @@ and sizes built in :mod:`famwise.planning.scenario`.
 
 from __future__ import annotations
 
+import dataclasses
+
 import math
 import numbers
 from dataclasses import dataclass, field
@@ -355,7 +357,9 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
     target_power : float, default=0.8
     procedures : list of str, optional
         Procedure identifiers and ``"auto"`` (the pipeline); default: the
-        procedures the route can choose at this design, and ``"auto"``.
+        procedures the route's rules can choose at this design (before its
+        power step, so the table shows what each rule's choice costs), and
+        ``"auto"``.
     replicates : int, default=2000
         Simulated data sets per size, for the alternative and for the null.
     seed : int, optional
@@ -488,9 +492,11 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
     if procs is None:
         from ..diagnostics.simulate import design_layout, route_table
         start_n = sizes[0] if sizes else start
-        table = route_table(fam, design_layout(group_sizes(start_n, weights), sds), pol, alpha)
-        # the rules' choices (the robust route's, taken only on data sets with a
-        # gross value, are simulated within "auto")
+        rules = dataclasses.replace(pol, power_route=False)
+        table = route_table(fam, design_layout(group_sizes(start_n, weights), sds), rules, alpha)
+        # the rules' choices, before the power step (which "auto" runs, so the
+        # table shows what a conservative rule would cost); the robust route's,
+        # taken only on data sets with a gross value, are simulated within "auto"
         chosen = list(dict.fromkeys(v for key, v in table.items() if isinstance(key[0], bool)))
         order = _CANDIDATES[kind]
         procs = [p for p in order if p in chosen] + [p for p in chosen if p not in order] \
