@@ -211,6 +211,27 @@ def test_cli_plan(tmp_path, capsys):
     assert "pilot FILE" in capsys.readouterr().err
 
 
+def test_pilot_rows_are_accounted_for_and_non_detects_need_a_choice(capsys):
+    """Every pilot row is accounted for in the plan's record and notes; a pilot
+    with non-detects stops with the fix named (exit 2), nothing dropped silently."""
+    demo = "demos/covercrop_nitrate.csv"
+    args = ["plan", demo, "-r", "nitrate_mg_kg", "-g", "mix", "--merge-spellings",
+            "--exclude-rows", "19,37", "--margin", "5", "--n", "8", "--replicates", "200"]
+    assert cli_main(args) == 2
+    err = capsys.readouterr().err
+    assert "non-detect" in err and "--nondetects drop" in err and err.count("\n") == 1
+    r = famwise.plan(demo, "nitrate_mg_kg", "mix", margin=5, n=8, replicates=200, seed=1,
+                     merge_spellings=True, exclude_rows=[19, 37], nondetects="drop",
+                     procedures=["tukey-kramer"])
+    led = r.settings["pilot_ledger"]
+    assert led["read"] == led["used"] + led["dropped"]
+    assert led["dropped_by_reason"]["excluded"] == 2 and led["dropped_by_reason"]["not-detected"] >= 1
+    note = next(n for n in r.notes if n.startswith("The pilot ("))
+    assert f"{led['read']} rows read, {led['used']} used" in note
+    assert "excluded by the user (rows 19, 37)" in note
+    assert f"The pilot ({demo}): {led['read']} rows read" in r.summary()
+
+
 def test_blocked_pilot_plans_at_the_residual_spread():
     """A pilot with strong block effects: the plan's SDs come from the additive
     model's residuals (fit_model), not from the block-inflated group SDs, and

@@ -116,7 +116,8 @@ def interpret(text: str, decimal: str, row_limit: float | None, where: str,
             raise FamwiseInputError(
                 f"{where} holds the non-detect {text!r} without a number; give its limit "
                 f"with detection_limit= (a number or a column of limits; CLI "
-                f"--detection-limit), or set non-detects aside with nondetects='drop'")
+                f"--detection-limit), or set non-detects aside with nondetects='drop' "
+                f"(--nondetects drop)")
         if not np.isfinite(row_limit):
             raise FamwiseInputError(
                 f"{where} holds the non-detect {text!r} but the detection-limit column "

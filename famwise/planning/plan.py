@@ -310,7 +310,7 @@ def _pilot(data, response, group, sd, scale, allocation, shape, read_options, bl
         sha = file_sha256(data)
     return dict(k=k, labels=tuple(labels), sds=sds, pilot_means=st.mean, weights=weights,
                 errors=errors, shape=shape, source=intake.ledger.source, sha=sha,
-                pilot_n=[int(v) for v in st.n], blocked=blocked)
+                pilot_n=[int(v) for v in st.n], blocked=blocked, ledger=intake.ledger)
 
 
 def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
@@ -471,7 +471,7 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
                                     "data=FILE or use shape='normal'")
         pilot = dict(k=k, labels=tuple(f"g{i + 1}" for i in range(k)), sds=sds,
                      pilot_means=None, weights=np.ones(k), errors=None, shape=shape,
-                     source=None, sha=None, pilot_n=None, blocked=None)
+                     source=None, sha=None, pilot_n=None, blocked=None, ledger=None)
     else:
         pilot = _pilot(data, response, group, sd, scale, allocation, shape, read_options, block)
     k, labels, sds = pilot["k"], pilot["labels"], pilot["sds"]
@@ -554,11 +554,14 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
         "candidates": sizes, "max_n": int(max_n), "pilot_n": pilot["pilot_n"],
         "family": kind, "reference": ref_label, "comparisons": list(fam.names),
         "m": fam.m, "policy": pol.to_dict(),
+        "pilot_ledger": pilot["ledger"].to_dict() if pilot["ledger"] else None,
         "pilot_model": blocked["model"] if blocked else None,
         "blocks": ({"column": blocked["block"], "design": "randomised complete blocks",
                     "plots_per_cell": 1, "error_df": "(k - 1)(b - 1)"}
                    if rcbd is not None else None),
     }
+    if pilot["ledger"] is not None:
+        notes.append(_pilot_note(pilot["ledger"]))
     if blocked:
         notes.append(blocked["note"])
     if scale.name:
@@ -566,6 +569,22 @@ def plan(data=None, response=None, group=None, *, sd=None, n=None, margin,
     return Plan(table, recommended, settings, dict(evaluate.routes),
                 {s: list(v) for s, v in evaluate.sizes.items()}, dict(evaluate.methods),
                 tuple(notes))
+
+
+def _pilot_note(ledger) -> str:
+    """One sentence accounting for the pilot's rows (what was read, used, set aside)."""
+    from ..intake.ledger import REASONS
+    unit = ledger.unit + "s"
+    text = f"The pilot ({ledger.source}): {ledger.read} {unit} read, {ledger.used} used"
+    if ledger.dropped:
+        parts = []
+        for reason, count in ledger.counts().items():
+            rows = [str(d.row) for d in ledger.dropped if d.reason == reason]
+            more = f" and {len(rows) - 10} more" if len(rows) > 10 else ""
+            parts.append(f"{count} {REASONS[reason]} (row{'s' if count > 1 else ''} "
+                         f"{', '.join(rows[:10])}{more})")
+        text += f", {len(ledger.dropped)} set aside: " + "; ".join(parts)
+    return text + "."
 
 
 def _log_note(scale, margin, shift, pilot: bool) -> str:
