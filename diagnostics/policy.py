@@ -81,25 +81,34 @@ Defaults and where they come from:
   tolerance is our policy (no source): the slope of a few groups' SDs is
   noisy, and powers between -0.35 and 0.35 differ little from the log in
   practice.
-* ``power_route = False``: when True, the route's last step calibrates at
-  the observed design (:mod:`famwise.diagnostics.power_choice`): each
-  candidate's familywise error under the complete null and its power
-  against one shifted comparison, from ``power_replicates = 1000`` simulated
-  data sets (errors resampled from the observed standardised residuals), and
-  takes the most powerful candidate that holds.  Off by default, from the
-  error-rate matrix's power rows (README; ``tests/test_error_matrix.py``,
-  400 null and 400 shifted data sets per design): the step keeps the
-  familywise error within alpha + 3 SE on all six designs and raises the
-  power on unbalanced equal-SD normal data (0.282 -> 0.362), but it stays
-  more than 0.05 below the best valid candidate there (Tukey–Kramer, 0.515)
-  and on balanced skewed data (0.318 against the permutation max-T's
-  0.715), and it lowers the power where small groups carry large SDs (0.233
-  -> 0.180, by moving data sets whose observed SDs make Dunnett's T3 look
-  liberal to the bootstrap).  The calibration sees the observed SDs and
-  residuals, which in groups of four to ten are too noisy a picture of the
-  true ones.  1,000 replicates give a binomial SE of 0.007 at alpha = 0.05
-  and keep the step near 0.2 s at N = 50, k = 6
-  (``tests/bench/bench_power_route.py``).
+* ``power_route = True``: the route's last step calibrates at the observed
+  design (:mod:`famwise.diagnostics.power_choice`): each candidate's
+  familywise error under the complete null and its power against one
+  shifted comparison, from ``power_replicates = 2000`` simulated data sets
+  (errors resampled from the observed standardised residuals), and takes the
+  most powerful candidate that holds.  A rules' choice that holds is kept
+  unless a holding candidate beats it by ``power_gain_min``; one that does
+  not hold is still kept when every holding candidate is less powerful (at
+  a small study the calibration's picture is too noisy to give up the
+  rules' choice for less power).  On by default, from the error-rate
+  matrix's power rows (README; ``tests/test_error_matrix.py``, 400 null and
+  400 shifted data sets per design): with the step the familywise error
+  stays within alpha + 3 SE on all six designs (at most 0.070 against the
+  limit 0.083), the power on unbalanced equal-SD normal data rises from
+  0.307 to 0.432 (Tukey–Kramer alone 0.515), and on four designs the route
+  is within 0.012 of the best valid candidate.  It stays far below it on
+  balanced skewed data (0.328 against the permutation max-T's 0.715): the
+  observed SDs of lognormal groups of ten differ by factors of four to nine
+  when the true ones are equal, the spread checks fail, and at those SDs the
+  permutation max-T is liberal, so the bootstrap is kept.  2,000 replicates
+  give a binomial SE of 0.005 at alpha = 0.05 and keep the step near 0.1 s
+  at N = 50, k = 6 (``tests/bench/bench_power_route.py``).
+* ``power_pool_spreads = True``: when the spread checks pass, the step
+  simulates every group at the pooled SD, the estimate the checks support;
+  at the observed SDs, the noise of small groups' SDs makes an exact pooled
+  procedure (Tukey–Kramer) look liberal exactly when a small group's SD
+  comes out large, and the step then gave up its power for nothing (our
+  policy, from the matrix's unbalanced designs).
 * ``power_at = 0.5``: the alternative, without a margin, shifts one
   comparison by the number of standard errors at which a Bonferroni z test
   has this power; procedures' powers differ most at power one half (the
