@@ -163,7 +163,7 @@ def simulate_model(scenario: ModelScenario, family: Family, procedures, *, repli
     Procedures the model simulation does not cover are refused here
     (:func:`model_simulated`); the caller reports them.
     """
-    from ..resample.engine import chunk_seed, chunk_sizes, run_tasks
+    from ..resample.engine import run_chunks
     policy = policy or Policy()
     layout, alpha = scenario.layout, float(alpha)
     names = [p for p in procedures if p != "auto"]
@@ -183,17 +183,8 @@ def simulate_model(scenario: ModelScenario, family: Family, procedures, *, repli
     crit.update(critical_values(todo, layout, family, alpha))
     quiet = policy.replace(calibrate_candidates=False) if pipeline else None
     task = _Task(scenario, alg, closed, warp, crit, alpha, quiet)
-    sizes = chunk_sizes(replicates, CHUNK)
-    parts: dict[int, dict] = {}
-
-    def collect(index, result):
-        parts[index] = result
-        if on_chunk is not None:
-            on_chunk(sizes[index])
-
-    run_tasks(_chunk, [(i, (task, s, chunk_seed(seed, i))) for i, s in enumerate(sizes)],
-              n_jobs, backend, scheduler, collect)
-    ordered = [parts[i] for i in range(len(sizes))]
+    ordered = run_chunks(_chunk, task, replicates, CHUNK, seed, n_jobs, backend, scheduler,
+                         on_chunk)
     rejects, methods = {}, {}
     for name in closed:
         rejects[name] = np.concatenate([p["closed"][name] for p in ordered])

@@ -232,7 +232,7 @@ def simulate(design: Scenario, family: Family, procedures, *, replicates: int,
         procedure: ``trim`` (``yuen-holm``) and ``statistic`` (``"welch"`` or
         ``"pooled"``, the resampling procedures).  Not with the pipeline.
     """
-    from ..resample.engine import chunk_seed, chunk_sizes, run_tasks
+    from ..resample.engine import run_chunks
     policy = policy or Policy()
     names = [p for p in procedures if p != "auto"]
     pipeline = pipeline or "auto" in procedures
@@ -259,17 +259,8 @@ def simulate(design: Scenario, family: Family, procedures, *, replicates: int,
         raise ValueError("procedure options apply to named procedures, not the pipeline")
     task = _Task(design, family, closed, warp, float(alpha), quiet, dict(options or {}),
                  extra, table if pipeline else None, lazy | lazy_warp)
-    sizes = chunk_sizes(replicates, CHUNK)
-    parts: dict[int, dict] = {}
-
-    def collect(index, result):
-        parts[index] = result
-        if on_chunk is not None:
-            on_chunk(sizes[index])
-
-    run_tasks(_chunk, [(i, (task, s, chunk_seed(seed, i))) for i, s in enumerate(sizes)],
-              n_jobs, backend, scheduler, collect)
-    ordered = [parts[i] for i in range(len(sizes))]
+    ordered = run_chunks(_chunk, task, replicates, CHUNK, seed, n_jobs, backend, scheduler,
+                         on_chunk)
     rejects, methods = {}, {}
     m = family.m
     for name in closed:

