@@ -63,8 +63,19 @@ def test_demo_command_writes_its_files(tmp_path, capsys):
     groups = pd.read_csv(out / "groups.csv")
     assert list(groups["group"]) == list(MIXES)
     # The next season's plan sits beside the reviewed comparison report.
-    for name in ("power.csv", "power.json", "power.txt", "power.html"):
+    for name in ("power.csv", "power.json", "power.txt", "power.html", "power.svg"):
         assert (out / "after-review" / name).stat().st_size > 0
+    # The README shows the demo's power curves (demos/covercrop_power.svg):
+    # the committed figure must be the one the demo draws now, curve for curve.
+    import xml.etree.ElementTree as ET
+
+    def curves(path):
+        root = ET.parse(path).getroot()
+        return sorted((e.get("id"), e[0].get("d") if len(e) else None)
+                      for e in root.iter() if (e.get("id") or "").startswith("power-curve-"))
+    fresh = curves(out / "after-review" / "power.svg")
+    assert fresh and curves(REPO / "demos" / "covercrop_power.svg") == \
+        fresh, "demos/covercrop_power.svg is stale: copy out/demo/after-review/power.svg"
     power = json.loads((out / "after-review" / "power.json").read_text())
     assert power["schema"] == "famwise.plan/1" and power["settings"]["margin"] == 5.0
     assert power["settings"]["pilot_n"] is not None and "auto" in power["recommended"]

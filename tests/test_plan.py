@@ -153,7 +153,15 @@ def test_outputs_are_honest_escaped_and_deterministic(tmp_path):
                                      "power_all", "fwer", "mc_se"]
     r.save(tmp_path / "p")
     assert sorted(p.name for p in (tmp_path / "p").iterdir()) == [
-        "power.csv", "power.html", "power.json", "power.txt"]
+        "power.csv", "power.html", "power.json", "power.svg", "power.txt"]
+    # power.svg is an image file of its own: well-formed XML in the SVG namespace
+    # (W3C SVG 1.1), one curve per procedure and the target line.
+    import xml.etree.ElementTree as ET
+    root = ET.parse(tmp_path / "p" / "power.svg").getroot()
+    assert root.tag == "{http://www.w3.org/2000/svg}svg"
+    ids = {e.get("id") for e in root.iter() if e.get("id")}
+    assert sum(i.startswith("power-curve-") for i in ids) == len(r.settings["procedures"])
+    assert "power-target-line" in ids
     with pytest.raises(FamwiseInputError, match="force"):
         r.save(tmp_path / "p")
     assert "qualified statistician" in r.summary()

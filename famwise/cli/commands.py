@@ -338,7 +338,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--scheduler", metavar="ADDRESS", help="dask scheduler address")
     p.add_argument("--policy", metavar="FILE", help="routing thresholds from a TOML file")
     p.add_argument("--out", "-o", metavar="DIR",
-                   help="write power.csv, power.json, power.txt and power.html to DIR")
+                   help="write power.csv, power.json, power.txt, power.html and power.svg to DIR")
     p.add_argument("--force", action="store_true", help="replace files already in DIR")
     p.add_argument("--format", choices=("text", "json", "csv"), default="text",
                    help="what to print: the summary, the plan record, or the table")

@@ -132,7 +132,8 @@ class Plan:
         return text
 
     def save(self, folder, force: bool = False) -> list[str]:
-        """Write ``power.csv``, ``power.json``, ``power.txt`` and ``power.html``."""
+        """Write ``power.csv``, ``power.json``, ``power.txt``, ``power.html`` and
+        ``power.svg`` (the power curves as an image file)."""
         from ..report.plan_files import save_plan
         return save_plan(self, folder, force=force)
 

@@ -1,4 +1,5 @@
-"""Saving a plan: ``power.csv``, ``power.json``, ``power.txt``, ``power.html``.
+"""Saving a plan: ``power.csv``, ``power.json``, ``power.txt``, ``power.html`` and
+``power.svg`` (the power curves as an image file).
 
 Rendered in memory first, then written all or none
 (:func:`famwise.report.output.write_files`); a folder that already holds any
@@ -11,13 +12,15 @@ from .output import prepare_folder, safe_csv_text, write_files
 
 __all__ = ["PLAN_FILES", "render_plan_files", "save_plan"]
 
-PLAN_FILES = ("power.csv", "power.json", "power.txt", "power.html")
+PLAN_FILES = ("power.csv", "power.json", "power.txt", "power.html", "power.svg")
 
 
 def render_plan_files(result) -> dict[str, str]:
-    from .plan_html import plan_html
+    from .plan_html import curves_svg, plan_html, standalone_svg
+    curves = curves_svg(result)
     return {"power.csv": safe_csv_text(result.table), "power.json": result.to_json() + "\n",
-            "power.txt": result.summary() + "\n", "power.html": plan_html(result)}
+            "power.txt": result.summary() + "\n", "power.html": plan_html(result, curves),
+            "power.svg": standalone_svg(curves[0])}
 
 
 def save_plan(result, folder, force: bool = False) -> list[str]:

@@ -22,7 +22,7 @@ from .html import CSP, _STYLE, _e, _facts, _figure, _list, _num, _table
 from .plan_text import (PLAN_CAUTIONS, family_words, liberal_procedures, margin_words,
                         plan_statements)
 
-__all__ = ["plan_html", "PLAN_SECTIONS", "plan_command"]
+__all__ = ["plan_html", "PLAN_SECTIONS", "plan_command", "curves_svg", "standalone_svg"]
 
 PLAN_SECTIONS = (
     ("assumed", "What was assumed"),
@@ -68,36 +68,46 @@ def plan_command(result) -> str:
     return shlex.join(parts)
 
 
-def _curves(result) -> str:
+def curves_svg(result) -> tuple[str, str]:
+    """The power-curve figure of a plan and its caption: power against the
+    size per group, one line per procedure, the target line."""
     t = result.table
     s = result.settings
     n = sorted(t["n_per_group"].unique())
-    out = []
     liberal = liberal_procedures(result)
-    for col, what in ((f"power_{s['goal']}", f"power ({s['goal']})"),):
-        series = {}
-        for p in s["procedures"]:
-            sub = t[t["procedure"] == p].set_index("n_per_group")[col]
-            label = "automatic pipeline" if p == "auto" else p
-            if p in liberal:
-                label += " (liberal here)"
-            series[label] = [
-                float(sub.get(v, np.nan)) for v in n]
-        unit = ("blocks (one plot of every group in each)" if s.get("blocks")
-                else "observations per group")
-        svg = figures.power_curve_svg(n, series, s["target_power"], what=what,
-                                      highlight="automatic pipeline",
-                                      unit="blocks" if s.get("blocks") else
-                                      "observations per group")
-        out.append(_figure(svg, f"Estimated {what} against {unit} "
-                                f"({margin_words(s)}), one line "
-                                f"per procedure; the dashed line is the target "
-                                f"{s['target_power']:g}. Each point is a Monte Carlo "
-                                f"estimate from {s['replicates']} data sets (largest SE "
-                                f"{_num(float(t['mc_se'].max()))}). Procedures marked liberal "
-                                f"exceed the familywise level at this design.",
-                                "power-curves"))
-    return _section("curves", "".join(out))
+    col, what = f"power_{s['goal']}", f"power ({s['goal']})"
+    series = {}
+    for p in s["procedures"]:
+        sub = t[t["procedure"] == p].set_index("n_per_group")[col]
+        label = "automatic pipeline" if p == "auto" else p
+        if p in liberal:
+            label += " (liberal here)"
+        series[label] = [float(sub.get(v, np.nan)) for v in n]
+    unit = ("blocks (one plot of every group in each)" if s.get("blocks")
+            else "observations per group")
+    svg = figures.power_curve_svg(n, series, s["target_power"], what=what,
+                                  highlight="automatic pipeline",
+                                  unit="blocks" if s.get("blocks") else
+                                  "observations per group")
+    caption = (f"Estimated {what} against {unit} ({margin_words(s)}), one line per "
+               f"procedure; the dashed line is the target {s['target_power']:g}. Each point "
+               f"is a Monte Carlo estimate from {s['replicates']} data sets (largest SE "
+               f"{_num(float(t['mc_se'].max()))}). Procedures marked liberal exceed the "
+               f"familywise level at this design.")
+    return svg, caption
+
+
+def standalone_svg(svg: str) -> str:
+    """The power curves (:func:`curves_svg`) as a file of their own
+    (``power.svg``): the inline figure with the namespaces an image file needs."""
+    svg = svg.replace("<svg ", '<svg xmlns="http://www.w3.org/2000/svg" '
+                               'xmlns:xlink="http://www.w3.org/1999/xlink" ', 1)
+    return '<?xml version="1.0" encoding="utf-8"?>\n' + svg + "\n"
+
+
+def _curves(result, curves=None) -> str:
+    svg, caption = curves or curves_svg(result)
+    return _section("curves", _figure(svg, caption, "power-curves"))
 
 
 def _sizes(result) -> str:
@@ -122,8 +132,9 @@ def _sizes(result) -> str:
         _e(x) for x in plan_statements(result)[1:]) + "</p>")
 
 
-def plan_html(result) -> str:
-    """Return the self-contained HTML power report of ``result`` (a Plan)."""
+def plan_html(result, curves: tuple[str, str] | None = None) -> str:
+    """Return the self-contained HTML power report of ``result`` (a Plan);
+    ``curves``: the figure and caption of :func:`curves_svg`, when already drawn."""
     s = result.settings
     title = "famwise power report" + (f": {s['response']} by {s['group']}"
                                       if s["response"] else "")
@@ -166,7 +177,7 @@ def plan_html(result) -> str:
         [("seed", s["seed"]), ("SHA-256 of the pilot", s["sha256"] or "none"),
          ("record schema", "famwise.plan/1")]))
     cautions = _section("cautions", _list(PLAN_CAUTIONS))
-    sections = [assumed, _curves(result), _sizes(result), table, reproduce, cautions]
+    sections = [assumed, _curves(result, curves), _sizes(result), table, reproduce, cautions]
     nav = ('<nav aria-label="Sections"><ol>'
            + "".join(f'<li><a href="#{sid}">{_e(h)}</a></li>' for sid, h in PLAN_SECTIONS)
            + "</ol></nav>")
