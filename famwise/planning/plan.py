@@ -35,7 +35,6 @@ and sizes built in :mod:`famwise.planning.scenario`.
 from __future__ import annotations
 
 import dataclasses
-
 import math
 import numbers
 from dataclasses import dataclass, field
