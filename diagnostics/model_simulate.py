@@ -40,7 +40,7 @@ from ..core.layout import Layout
 from ..procedures import adjust
 from ..procedures.catalogue import CATALOGUE, run_procedure
 from .policy import Policy
-from .simulate import CHUNK, Simulation
+from .simulate import CHUNK, Simulation, finish_simulation
 from .stacked_model import WARP_MODEL, ModelAlgebra, model_checks_stacked
 from .stacked_procedures import single_step_name, warp_rejects
 
@@ -207,12 +207,4 @@ def simulate_model(scenario: ModelScenario, family: Family, procedures, *, repli
         lookup = np.array([table[(bool(a), bool(b))] for a in (False, True)
                            for b in (False, True)], dtype=object)
         routes = lookup[key]
-        auto = np.zeros((replicates, family.m), dtype=bool)
-        for proc in set(table.values()):
-            rows = routes == proc
-            auto[rows] = rejects[proc][rows]
-        rejects["auto"] = auto
-        methods["auto"] = "checks and routing re-run on every replicate"
-    return Simulation(int(replicates), {k: v for k, v in rejects.items()
-                                        if k in procedures or k == "auto"},
-                      routes, methods)
+    return finish_simulation(rejects, methods, routes, procedures, replicates, family.m)

@@ -49,7 +49,7 @@ from .stacked_procedures import (Stack, closed_form_rejects, is_resampling, sing
                                  warp_rejects, warp_statistics)
 
 __all__ = ["Scenario", "Simulation", "route_table", "design_layout", "draw", "simulate",
-           "CHUNK"]
+           "finish_simulation", "CHUNK"]
 
 #: Replicates per chunk (fixed, so results never depend on n_jobs).
 CHUNK = 500
@@ -287,11 +287,19 @@ def simulate(design: Scenario, family: Family, procedures, *, replicates: int,
         if name not in rejects:      # a procedure only the route needs, never routed to
             rejects[name] = np.zeros((replicates, m), dtype=bool)
             methods[name] = "not needed: no replicate took its route"
-    routes = None
-    if pipeline:
-        routes = np.array([table[key] for p in ordered for key in p["keys"]], dtype=object)
-        auto = np.zeros((replicates, family.m), dtype=bool)
-        for proc in set(table.values()):
+    routes = (np.array([table[key] for p in ordered for key in p["keys"]], dtype=object)
+              if pipeline else None)
+    return finish_simulation(rejects, methods, routes, procedures, replicates, family.m)
+
+
+def finish_simulation(rejects: dict, methods: dict, routes, procedures, replicates: int,
+                      m: int) -> Simulation:
+    """The :class:`Simulation` of the procedures asked for, with the pipeline's
+    rejections ("auto") taken row by row from the procedure each replicate was
+    routed to (``routes``, None without the pipeline)."""
+    if routes is not None:
+        auto = np.zeros((replicates, m), dtype=bool)
+        for proc in set(routes.tolist()):
             rows = routes == proc
             auto[rows] = rejects[proc][rows]
         rejects["auto"] = auto
