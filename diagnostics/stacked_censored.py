@@ -1,8 +1,8 @@
 """Data with non-detects on stacked replicates: the scenario and the procedures.
 
 The scenario (:class:`CensoredScenario`): in each group g a latent value
-exp(mu_g + sigma_g e), e standard normal (a lognormal, as fitted to a pilot
-by :func:`famwise.model.lognormal.fit_censored_lognormal`), and a detection
+exp(mu_g + sigma_g e), e standard normal (a lognormal, with mu_g and
+sigma_g given by the caller), and a detection
 limit for each observation drawn from the group's limits with their
 frequencies; a latent value below its limit is reported as a non-detect
 "<L" (the layout's convention: the value holds the limit, ``censored`` is
@@ -34,9 +34,9 @@ The procedures, for every row at once:
   against a reference, Dunnett's T3 for contrasts).  A comparator for
   planning, not a procedure of the catalogue.
 
-``tests/test_stacked_censored.py`` checks the statistics against
-:func:`famwise.resample.censored.gehan_maxt` / ``peto_maxt`` row by row and
-the warp-speed decisions against the full nested computation.
+``tests/test_stacked_ranks.py`` checks the statistics against
+:mod:`famwise.resample.censored`'s row by row and the warp-speed decisions
+of ``gehan-maxt`` and ``peto-maxt`` against the full nested computation.
 """
 
 from __future__ import annotations
