@@ -417,7 +417,7 @@ def stacked_checks(x: np.ndarray, blocks: Blocks, policy: Policy | None = None, 
 
     ``summaries`` may pass the rows' ``(means, variances)`` when the caller
     has them already.  The design checks depend on the sizes alone, the same
-    in every row; :func:`famwise.diagnostics.route_table` reads them once.
+    in every row; :func:`famwise.diagnostics.simulate.route_table` reads them once.
     """
     policy = policy or Policy()
     x = np.asarray(x, dtype=np.float64)

@@ -1,4 +1,4 @@
-"""The self-contained HTML report of a :class:`~famwise.core.results.Comparison`.
+"""The self-contained HTML report of a :class:`~famwise.comparison.Comparison`.
 
 One file, readable offline and printable: the style sheet is inline, the
 figures are inline SVG (:mod:`famwise.report.figures`), there is no
@@ -755,7 +755,7 @@ def html_report(result) -> str:
 
     Parameters
     ----------
-    result : famwise.core.results.Comparison
+    result : famwise.comparison.Comparison
         What :func:`famwise.compare` returned.
 
     Returns

@@ -57,7 +57,7 @@ def model_lines(result, wrap) -> list[str]:
 
 
 def summary_text(result, width: int = 100) -> str:
-    """Return the plain-text summary of a :class:`~famwise.core.results.Comparison`."""
+    """Return the plain-text summary of a :class:`~famwise.comparison.Comparison`."""
     rec = result.decision
     lay = result.layout
     led = rec.input["ledger"]
