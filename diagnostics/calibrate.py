@@ -44,7 +44,6 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from ..distributions import simultaneous as dist
 from ..core.errors import FamwiseInputError
 from ..core.families import Family
 from ..core.layout import Layout

@@ -385,7 +385,7 @@ def choose_by_power(rule_choice: str, layout: Layout, family: Family, policy: Po
     rec = dict(rec, chosen=chosen, rule_choice=rule_choice)
     set_aside = None
     if chosen != rule_choice:
-        set_aside = (f"the rules' choice; at this design "
+        set_aside = ("the rules' choice; at this design "
                      + (f"less powerful ({rule['power']:.3f} against {rows[chosen]['power']:.3f})"
                         if rule["holds"] else
                         f"its estimated familywise error is {rule['fwer']:.3f}, above the "

@@ -333,7 +333,6 @@ def modified_z_rows(x: np.ndarray, blocks: Blocks) -> tuple[np.ndarray, np.ndarr
     pooled scale, row by row, as :func:`famwise.diagnostics.shape.modified_z`
     and :func:`~famwise.diagnostics.shape.pooled_scale` compute them for one
     data set (0 in groups of fewer than three)."""
-    r = x.shape[0]
     within = np.zeros(x.shape)
     dev_all = np.zeros(x.shape)
     used = np.zeros(x.shape[1], dtype=bool)

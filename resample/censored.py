@@ -47,7 +47,6 @@ known.
 from __future__ import annotations
 
 import numpy as np
-import pandas as pd
 
 from ..core.errors import FamwiseInputError
 from ..core.layout import Layout

@@ -17,7 +17,6 @@ References, named beside each check:
 """
 
 import itertools
-import math
 import warnings
 
 import numpy as np
@@ -409,7 +408,7 @@ def test_compare_end_to_end_records_the_nondetects(tmp_path):
     rows = []
     for g, mu in (("up", 0.0), ("mid", 0.2), ("down", 1.3)):
         for x in rng.lognormal(mu, 0.8, 10):
-            rows.append((g, f"<0.5" if x < 0.5 else f"{x:.2f}"))
+            rows.append((g, "<0.5" if x < 0.5 else f"{x:.2f}"))
     pd.DataFrame(rows, columns=["station", "lead"]).to_csv(path, index=False)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")

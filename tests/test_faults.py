@@ -20,7 +20,6 @@ import os
 import signal
 import subprocess
 import sys
-import threading
 import time
 import warnings
 

@@ -30,7 +30,6 @@ from scipy import stats
 import famwise
 from famwise import FamwiseInputError
 from famwise.cli import main as cli_main
-from famwise.core.families import all_pairs
 from famwise.diagnostics.simulate import Scenario, draw
 from famwise.diagnostics.stacked_procedures import anova_f
 

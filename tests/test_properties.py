@@ -36,7 +36,6 @@ import os
 import warnings
 
 import numpy as np
-import pytest
 from hypothesis import HealthCheck, Phase, given, settings
 from hypothesis import strategies as st
 

@@ -51,7 +51,6 @@ import json
 import platform
 import sys
 from dataclasses import asdict, dataclass, field
-from typing import Any
 
 __all__ = ["SCHEMA", "DecisionRecord", "environment"]
 

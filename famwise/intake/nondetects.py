@@ -165,7 +165,7 @@ def row_limits(cells, decimal: str, spec: LimitSpec, source: str,
 @dataclass(frozen=True)
 class Censoring:
     keep: bool
-    spec: nd.LimitSpec
+    spec: LimitSpec
 
 
 def censor_cells(values, reasons, texts, how: Censoring, limits, rows, column: str,

@@ -463,7 +463,6 @@ def _check_groups(layout: Layout, values: np.ndarray):
 def _fit(layout: Layout, design: Design | None, *, force_qr: bool) -> ModelFit:
     values = layout.values
     n = _check_groups(layout, values)
-    k = layout.k
     # Shift by the median (a data value or the midpoint of two): differences
     # of nearby doubles are exact (Sterbenz), so the means of the shifted
     # values carry full relative precision.

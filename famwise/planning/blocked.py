@@ -102,7 +102,7 @@ def rcbd_pilot(layout: Layout, block: str) -> dict:
     if several:
         how.append(f"{several} group-by-block cell{'s' if several > 1 else ''} with several "
                    f"plots")
-    pilot_words = (f"a complete block pilot" if not how else
+    pilot_words = ("a complete block pilot" if not how else
                    f"a pilot with {' and '.join(how)} (the additive model uses every plot)")
     note = (f"Blocks: the plan is for {DESIGN_WORDS} ('{name}'), so n per group is the number "
             f"of blocks and the error df is (k - 1)(b - 1). The error SD of each group is its "

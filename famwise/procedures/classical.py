@@ -71,7 +71,7 @@ from ._shared import (_check_alternative, _check_family, _interval,
                                _offending_contrast, _sided, _t_crit, _t_pvalue)
 from ..core.errors import FamwiseInputError
 from ..core.families import Family
-from ..core.layout import Layout, group_stats
+from ..core.layout import Layout
 from ..core.table import comparisons_table
 from ..core.validate import check_alpha
 

@@ -519,9 +519,6 @@ def _comparisons(result) -> str:
     headers = [h for _, h in cols] + ["decision"] + (["against the margin"]
                                                      if "practical" in t else [])
     resampled = "mc_error" in t
-    more_cols = [("std_error", "SE"), ("statistic", "statistic"),
-                 ("p_unadjusted", "p alone")] + (
-        [("mc_error", "Monte Carlo SE of p")] if resampled else [])
     dfs = _reference_df(t)
     more_rows = [[r["comparison"], r["std_error"], d, r["statistic"], r["p_unadjusted"]]
                  + ([r["mc_error"]] if resampled else [])

@@ -84,7 +84,7 @@ def main():
             share <= 0.05, f"read {t_read:.3f} s; max-T {t_maxt:.2f} s (one job)")
 
         t_csv, _ = best(lambda: read(csv, "nitrate", "site"), repeats=2)
-        row(f"  read CSV, same rows (information)", f"{100 * t_csv / t_maxt:.1f}%", "-", True,
+        row("  read CSV, same rows (information)", f"{100 * t_csv / t_maxt:.1f}%", "-", True,
             f"read {t_csv:.3f} s")
         t_messy, got = best(lambda: read(messy, "nitrate", "site"), repeats=2)
         counts = got.ledger.counts()
